@@ -1,0 +1,52 @@
+// How spar uses the cores: one place for the thread count and the work-splitting rule.
+//
+// spar owns all threading. Kernels parallelise with OpenMP over fixed chunks whose size
+// depends only on the tensor shapes, never on the thread count, so every result is
+// bit-identical with 1, 2 or more threads. Eigen's own GEMM threading is switched off
+// (the matrix-product kernel sets Eigen::setNbThreads(1) on first use): spar splits each matrix
+// product into fixed panels itself, so there is exactly one level of parallelism per kernel and no
+// oversubscription. docs/threading.md says which operations run in parallel.
+//
+// Thread safety: set_threads() changes a process-wide setting; call it between steps, not
+// while kernels run.
+#pragma once
+
+#include <cstdint>
+
+namespace spar {
+
+// Kernels with fewer elements than this run on the calling thread alone.
+constexpr int64_t kParallelGrain = int64_t{1} << 15;
+
+// Runs body(i) for i in 0..count-1: split statically over the threads when `parallel` is
+// true and count > 1, otherwise in order on the calling thread without touching the
+// thread pool (entering an OpenMP region costs about a microsecond even for one thread).
+// body must be safe to run concurrently for distinct i.
+template <class Body>
+void parallel_for(int64_t count, bool parallel, Body&& body) {
+  if (!parallel || count < 2) {
+    for (int64_t i = 0; i < count; ++i) body(i);
+    return;
+  }
+#pragma omp parallel for schedule(static)
+  for (int64_t i = 0; i < count; ++i) body(i);
+}
+
+// Runs body(k) for every element index k in 0..n-1, in fixed chunks of kParallelGrain
+// spread over the threads (one chunk: the calling thread alone). For elementwise work.
+template <class Body>
+void parallel_for_elements(int64_t n, Body&& body) {
+  const int64_t chunks = (n + kParallelGrain - 1) / kParallelGrain;
+  parallel_for(chunks, true, [&](int64_t c) {
+    const int64_t end = n < (c + 1) * kParallelGrain ? n : (c + 1) * kParallelGrain;
+    for (int64_t k = c * kParallelGrain; k < end; ++k) body(k);
+  });
+}
+
+// The number of threads kernels use; 1 when spar was built without OpenMP.
+int thread_count();
+// Sets the number of threads kernels use (n >= 1; raises kBadArgument otherwise).
+// Results do not depend on it.
+void set_thread_count(int n);
+
+}  // namespace spar
