@@ -1,0 +1,95 @@
+// Kernels: the tensor-in, tensor-out computations behind the operations in ops.h.
+//
+// Kernels know nothing of tapes or gradients; each returns a freshly allocated tensor and
+// never writes into its inputs (tape.h, invariant 2). Large kernels split their work into
+// fixed chunks (parallel.h), so results are bit-identical for any thread count. Layers may
+// call kernels directly for work that is not differentiated (sampling, statistics).
+//
+// Thread safety: kernels may be called from several threads on distinct outputs; inputs
+// are only read.
+#pragma once
+
+#include <vector>
+
+#include "engine/tensor.h"
+
+namespace spar {
+namespace kernels {
+
+enum class Unary {
+  kNegate,
+  kExp,
+  kLog,
+  kSqrt,
+  kSquare,
+  kAbs,
+  kSign,  // -1, 0 or 1
+  kTanh,
+  kSigmoid,
+  kRelu,
+  kStep,        // 1 where x > 0, else 0 (the derivative of relu)
+  kSoftplus,    // log(1 + e^x), computed as max(x, 0) + log1p(e^-|x|)
+  kLogSigmoid,  // log(sigmoid(x)) = min(x, 0) - log1p(e^-|x|)
+};
+template <class T>
+Tensor<T> unary(Unary f, const Tensor<T>& x);
+
+// x^p elementwise; c·x; x + c; leaky relu (x for x > 0, slope·x otherwise) and its
+// derivative (1 or slope).
+template <class T>
+Tensor<T> power(const Tensor<T>& x, double p);
+template <class T>
+Tensor<T> scale(const Tensor<T>& x, double c);
+template <class T>
+Tensor<T> add_scalar(const Tensor<T>& x, double c);
+template <class T>
+Tensor<T> leaky_relu(const Tensor<T>& x, double slope);
+template <class T>
+Tensor<T> leaky_relu_slope(const Tensor<T>& x, double slope);
+
+enum class Binary { kAdd, kSubtract, kMultiply, kDivide };
+// Elementwise with numpy broadcasting; `op` names the operation in shape errors.
+template <class T>
+Tensor<T> binary(Binary f, const Tensor<T>& a, const Tensor<T>& b, const char* op);
+
+// Repeats x along its size-1 (or missing leading) axes to `shape`.
+template <class T>
+Tensor<T> broadcast_to(const Tensor<T>& x, const Shape& shape);
+// The adjoint of broadcast_to: sums x over the axes where `shape` has extent 1 (or lacks
+// leading axes). Accumulates in double; summation order depends only on the shapes.
+template <class T>
+Tensor<T> sum_to(const Tensor<T>& x, const Shape& shape);
+
+// Maximum along `axis`, keeping it with extent 1. When `first_max` is given it receives a
+// tensor shaped like x holding 1 at the first maximum of each lane and 0 elsewhere.
+template <class T>
+Tensor<T> max_along(const Tensor<T>& x, int axis, Tensor<T>* first_max);
+// log Σ exp(x) along `axis`, keeping it with extent 1, computed as m + log Σ exp(x - m).
+template <class T>
+Tensor<T> log_sum_exp_along(const Tensor<T>& x, int axis);
+
+// op(a)·op(b) for rank-2 a and b, op = transpose when the flag is set; Eigen's GEMM over
+// fixed row panels of the result (parallel.h).
+template <class T>
+Tensor<T> matrix_product(const Tensor<T>& a, const Tensor<T>& b, bool transpose_a,
+                         bool transpose_b);
+
+// Axis permutation: output axis i is input axis perm[i].
+template <class T>
+Tensor<T> permute(const Tensor<T>& x, const std::vector<int>& perm);
+// Entries begin..end-1 along `axis`.
+template <class T>
+Tensor<T> slice(const Tensor<T>& x, int axis, int64_t begin, int64_t end);
+// x with `before` zeros in front and `after` zeros behind along `axis`.
+template <class T>
+Tensor<T> pad(const Tensor<T>& x, int axis, int64_t before, int64_t after);
+// Joins tensors along `axis`; all other extents must agree.
+template <class T>
+Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis);
+
+// Σ x, accumulated in double over fixed chunks.
+template <class T>
+double sum_all(const Tensor<T>& x);
+
+}  // namespace kernels
+}  // namespace spar
