@@ -1,0 +1,25 @@
+// The subcommands of `spar`. Each add_* registers a subcommand with its options and help
+// (with an example) on the parent parser, and returns the function that runs it. A run
+// returns the exit code: 0 success, 1 the work failed, 2 bad usage or bad input; library
+// errors it does not catch are mapped to those codes by main.cpp.
+#pragma once
+
+#include <functional>
+
+namespace CLI {
+class App;
+}
+
+namespace spar {
+namespace cli {
+
+struct Subcommand {
+  CLI::App* parser;
+  std::function<int()> run;
+};
+
+Subcommand add_check_gradients(CLI::App& parent);
+Subcommand add_bench(CLI::App& parent);
+
+}  // namespace cli
+}  // namespace spar

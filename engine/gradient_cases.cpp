@@ -1,0 +1,148 @@
+// The engine's own gradient checks: every operation on random inputs.
+#include <functional>
+
+#include "engine/gradient_check.h"
+#include "engine/ops.h"
+#include "engine/random.h"
+
+namespace spar {
+namespace {
+
+using V = Var<double>;
+using Vs = std::vector<V>;
+using D = Tensor<double>;
+using Op = std::function<V(const Vs&)>;
+
+class CaseList {
+ public:
+  // Registers `name`: op folded into a scalar as Σ (w1·y + w2·y²), with w1, w2 random and
+  // fixed, so second-order checks differentiate the op's adjoint as well.
+  void check(const std::string& name, const Op& op, std::vector<D> inputs) {
+    Shape out_shape;
+    {
+      NoRecordScope no_record;
+      Vs xs(inputs.begin(), inputs.end());
+      out_shape = op(xs).shape();
+    }
+    V w1(rng_.uniform<double>(out_shape, -1, 1)), w2(rng_.uniform<double>(out_shape, -0.5, 0.5));
+    cases_.push_back({name,
+                      [op, w1, w2](const Vs& xs) {
+                        V y = op(xs);
+                        return sum(add(multiply(w1, y), multiply(w2, square(y))));
+                      },
+                      std::move(inputs)});
+  }
+  D any(const Shape& s, double lo = -2, double hi = 2) { return rng_.uniform<double>(s, lo, hi); }
+  D positive(const Shape& s) { return rng_.uniform<double>(s, 0.5, 2.0); }
+  // Magnitudes in [0.2, 1.5] with random signs: kinks at 0 stay far from ±h.
+  D away_from_zero(const Shape& s) {
+    D a = rng_.uniform<double>(s, 0.2, 1.5), b = rng_.uniform<double>(s, -1, 1);
+    for (int64_t i = 0; i < a.numel(); ++i) a.mutable_data()[i] *= b.data()[i] < 0 ? -1 : 1;
+    return a;
+  }
+  std::vector<GradientCase> take() { return std::move(cases_); }
+
+ private:
+  Rng rng_{20240611, 1};
+  std::vector<GradientCase> cases_;
+};
+
+}  // namespace
+
+std::vector<GradientCase> operation_gradient_cases() {
+  CaseList c;
+  // Broadcast patterns: same shape, scalar, per-row, per-column, per-channel, both sides,
+  // size-1 everywhere.
+  const std::vector<std::pair<std::string, std::pair<Shape, Shape>>> patterns = {
+      {"same shape", {{3, 4}, {3, 4}}},
+      {"scalar", {{3, 4}, {}}},
+      {"per-row", {{3, 4}, {3, 1}}},
+      {"per-column", {{3, 4}, {4}}},
+      {"per-channel", {{2, 3, 2, 2}, {1, 3, 1, 1}}},
+      {"both broadcast", {{3, 1}, {1, 4}}},
+      {"size-1", {{1, 1}, {1}}},
+  };
+  for (const auto& p : patterns) {
+    const Shape a = p.second.first, b = p.second.second;
+    c.check("add (" + p.first + ")", [](const Vs& x) { return add(x[0], x[1]); },
+            {c.any(a), c.any(b)});
+    c.check("add (" + p.first + ", swapped)", [](const Vs& x) { return add(x[0], x[1]); },
+            {c.any(b), c.any(a)});
+    c.check("subtract (" + p.first + ")", [](const Vs& x) { return subtract(x[0], x[1]); },
+            {c.any(a), c.any(b)});
+    c.check("multiply (" + p.first + ")", [](const Vs& x) { return multiply(x[0], x[1]); },
+            {c.any(a), c.any(b)});
+    c.check("divide (" + p.first + ")", [](const Vs& x) { return divide(x[0], x[1]); },
+            {c.any(a), c.away_from_zero(b)});
+  }
+  const Shape s{3, 4}, t{2, 1, 3};
+  for (const Shape& sh : {s, t}) {
+    c.check("negate", [](const Vs& x) { return negate(x[0]); }, {c.any(sh)});
+    c.check("exp", [](const Vs& x) { return exp(x[0]); }, {c.any(sh)});
+    c.check("log", [](const Vs& x) { return log(x[0]); }, {c.positive(sh)});
+    c.check("sqrt", [](const Vs& x) { return sqrt(x[0]); }, {c.positive(sh)});
+    c.check("square", [](const Vs& x) { return square(x[0]); }, {c.any(sh)});
+    c.check("power 3", [](const Vs& x) { return power(x[0], 3.0); }, {c.any(sh)});
+    c.check("power -1.5", [](const Vs& x) { return power(x[0], -1.5); }, {c.positive(sh)});
+    c.check("abs", [](const Vs& x) { return abs(x[0]); }, {c.away_from_zero(sh)});
+    c.check("tanh", [](const Vs& x) { return tanh(x[0]); }, {c.any(sh)});
+    c.check("sigmoid", [](const Vs& x) { return sigmoid(x[0]); }, {c.any(sh, -6, 6)});
+    c.check("relu", [](const Vs& x) { return relu(x[0]); }, {c.away_from_zero(sh)});
+    c.check("leaky_relu 0.2", [](const Vs& x) { return leaky_relu(x[0], 0.2); },
+            {c.away_from_zero(sh)});
+    c.check("softplus", [](const Vs& x) { return softplus(x[0]); }, {c.any(sh, -6, 6)});
+    c.check("log_sigmoid", [](const Vs& x) { return log_sigmoid(x[0]); }, {c.any(sh, -6, 6)});
+    c.check("scale", [](const Vs& x) { return scale(x[0], -1.7); }, {c.any(sh)});
+    c.check("add_scalar", [](const Vs& x) { return add_scalar(x[0], 0.3); }, {c.any(sh)});
+  }
+  c.check("matmul", [](const Vs& x) { return matmul(x[0], x[1]); }, {c.any({3, 4}), c.any({4, 5})});
+  c.check("matmul (aᵀ)", [](const Vs& x) { return matmul(x[0], x[1], true, false); },
+          {c.any({4, 3}), c.any({4, 5})});
+  c.check("matmul (bᵀ)", [](const Vs& x) { return matmul(x[0], x[1], false, true); },
+          {c.any({3, 4}), c.any({5, 4})});
+  c.check("matmul (aᵀ bᵀ)", [](const Vs& x) { return matmul(x[0], x[1], true, true); },
+          {c.any({4, 3}), c.any({5, 4})});
+  c.check("matmul (outer)", [](const Vs& x) { return matmul(x[0], x[1]); },
+          {c.any({3, 1}), c.any({1, 2})});
+  c.check("matmul (1x1 result)", [](const Vs& x) { return matmul(x[0], x[1]); },
+          {c.any({1, 4}), c.any({4, 1})});
+  c.check("transpose", [](const Vs& x) { return transpose(x[0]); }, {c.any({3, 4})});
+  c.check("permute", [](const Vs& x) { return permute(x[0], {2, 0, 1}); }, {c.any({2, 3, 4})});
+  c.check("reshape", [](const Vs& x) { return reshape(x[0], {4, 3}); }, {c.any({2, 6})});
+  c.check("concat axis 1",
+          [](const Vs& x) {
+            return concat<double>({x[0], x[1], x[2]}, 1);
+          },
+          {c.any({2, 1, 3}), c.any({2, 2, 3}), c.any({2, 3, 3})});
+  c.check("concat axis 0",
+          [](const Vs& x) {
+            return concat<double>({x[0], x[1]}, 0);
+          },
+          {c.any({1, 3}), c.any({2, 3})});
+  c.check("slice", [](const Vs& x) { return slice(x[0], 1, 1, 3); }, {c.any({2, 4, 2})});
+  c.check("pad", [](const Vs& x) { return pad(x[0], -1, 2, 1); }, {c.any({2, 3})});
+  c.check("broadcast_to",
+          [](const Vs& x) {
+            return broadcast_to(x[0], {2, 3, 4});
+          },
+          {c.any({3, 1})});
+  c.check("sum_to", [](const Vs& x) { return sum_to(x[0], {3, 1}); }, {c.any({2, 3, 4})});
+  c.check("sum", [](const Vs& x) { return sum(x[0]); }, {c.any({3, 4})});
+  c.check("sum axis 1", [](const Vs& x) { return sum(x[0], 1); }, {c.any({2, 3, 4})});
+  c.check("sum axis 0 (size 1)", [](const Vs& x) { return sum(x[0], 0); }, {c.any({1, 5})});
+  c.check("mean", [](const Vs& x) { return mean(x[0]); }, {c.any({3, 4})});
+  c.check("mean axis -1", [](const Vs& x) { return mean(x[0], -1, true); }, {c.any({3, 4})});
+  c.check("max axis 1", [](const Vs& x) { return max(x[0], 1); }, {c.any({3, 5})});
+  c.check("max axis 0", [](const Vs& x) { return max(x[0], 0, true); }, {c.any({4, 2, 3})});
+  c.check("log_sum_exp axis 1", [](const Vs& x) { return log_sum_exp(x[0], 1); }, {c.any({3, 5})});
+  c.check("log_sum_exp axis 0", [](const Vs& x) { return log_sum_exp(x[0], 0); }, {c.any({4, 2})});
+  c.check("softmax", [](const Vs& x) { return softmax(x[0], -1); }, {c.any({3, 4})});
+  c.check("softmax_cross_entropy", [](const Vs& x) { return softmax_cross_entropy(x[0], x[1], 1); },
+          {c.any({3, 4}), c.positive({3, 4})});
+  c.check("binary_cross_entropy_with_logits",
+          [](const Vs& x) { return binary_cross_entropy_with_logits(x[0], x[1]); },
+          {c.any({3, 4}, -5, 5), c.any({3, 4}, 0, 1)});
+  return c.take();
+}
+
+}  // namespace spar
