@@ -1,0 +1,81 @@
+// Parallel kernels give bit-identical results with 1 and 2 threads (engine/parallel.h):
+// elementwise work, broadcasting, every reduction pattern, and the matrix product.
+#include <catch2/catch.hpp>
+#include <cstring>
+#include <functional>
+
+#include "engine/kernels.h"
+#include "engine/ops.h"
+#include "engine/parallel.h"
+#include "engine/random.h"
+#include "tests/support.h"
+
+using namespace spar;
+using F = Tensor<float>;
+
+namespace {
+
+// Runs `compute` with one thread and with two and compares the bits.
+void check_thread_independent(const std::string& what, const std::function<F()>& compute) {
+  const int previous = thread_count();
+  set_thread_count(1);
+  const F one = compute();
+  set_thread_count(2);
+  const F two = compute();
+  set_thread_count(previous);
+  INFO(what);
+  CHECK(testing::same_bits(one, two));
+}
+
+}  // namespace
+
+TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
+  Rng rng(11, 1);
+  const F big = rng.uniform<float>({64, 32, 16, 16}, -3, 3);  // 524,288 elements, many chunks
+  const F channel = rng.uniform<float>({1, 32, 1, 1}, 0.5, 2);
+  const F a = rng.uniform<float>({384, 320}, -1, 1), b = rng.uniform<float>({320, 288}, -1, 1);
+  using kernels::Unary;
+  check_thread_independent("tanh", [&] { return kernels::unary(Unary::kTanh, big); });
+  check_thread_independent("softplus", [&] { return kernels::unary(Unary::kSoftplus, big); });
+  check_thread_independent("per-channel divide", [&] {
+    return kernels::binary(kernels::Binary::kDivide, big, channel, "divide");
+  });
+  check_thread_independent("sum to per-channel", [&] {
+    return kernels::sum_to(big, {1, 32, 1, 1});
+  });
+  check_thread_independent("sum to leading", [&] { return kernels::sum_to(big, {32, 16, 16}); });
+  check_thread_independent("sum to per-sample", [&] {
+    return kernels::sum_to(big, {64, 1, 1, 1});
+  });
+  check_thread_independent("sum all", [&] { return kernels::sum_to(big, {}); });
+  check_thread_independent("max along 1",
+                           [&] { return kernels::max_along<float>(big, 1, nullptr); });
+  check_thread_independent("log_sum_exp along 3",
+                           [&] { return kernels::log_sum_exp_along(big, 3); });
+  check_thread_independent("permute", [&] { return kernels::permute(big, {1, 0, 3, 2}); });
+  check_thread_independent("matmul", [&] { return kernels::matrix_product(a, b, false, false); });
+  check_thread_independent("matmul aᵀ bᵀ",
+                           [&] { return kernels::matrix_product(b, a, true, true); });
+  check_thread_independent("normal draws", [] { return Rng(5, 5).normal<float>({1 << 18}); });
+  check_thread_independent("a whole backward pass", [&] {
+    Tape<float> tape;
+    Var<float> x = tape.variable(big);
+    Var<float> loss = mean(square(tanh(x * Var<float>(channel))));
+    return tape.gradient(loss, {x})[0].value();
+  });
+}
+
+TEST_CASE("the panelled matrix product agrees with a plain triple loop", "[parallel]") {
+  // Reference: the definition C_ij = Σ_k A_ik B_kj, accumulated in double.
+  Rng rng(12, 1);
+  const F a = rng.uniform<float>({67, 45}, -1, 1), b = rng.uniform<float>({45, 131}, -1, 1);
+  const F c = kernels::matrix_product(a, b, false, false);
+  double worst = 0;
+  for (int i = 0; i < 67; ++i)
+    for (int j = 0; j < 131; ++j) {
+      double s = 0;
+      for (int k = 0; k < 45; ++k) s += double(a.at({i, k})) * b.at({k, j});
+      worst = std::max(worst, std::abs(s - c.at({i, j})));
+    }
+  CHECK(worst < 1e-5);  // 45 float products of magnitude ≤ 1: rounding ≤ 45·2⁻²⁴ ≈ 3e-6
+}
