@@ -285,7 +285,7 @@ TEMPLATE_TEST_CASE("fills are bit-identical with one thread and with two", "[ran
 }
 #endif
 
-TEMPLATE_TEST_CASE("uniform values lie in [low, high) with the right mean", "[random][stats]",
+TEMPLATE_TEST_CASE("uniform values lie at or above low and below high, with the right mean", "[random][stats]",
                    float, double) {
   const int64_t n = 1000000;
   const TestType low = -3, high = 2;
