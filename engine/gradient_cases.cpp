@@ -142,6 +142,34 @@ std::vector<GradientCase> operation_gradient_cases() {
   c.check("binary_cross_entropy_with_logits",
           [](const Vs& x) { return binary_cross_entropy_with_logits(x[0], x[1]); },
           {c.any({3, 4}, -5, 5), c.any({3, 4}, 0, 1)});
+  // Convolutions: non-square inputs and kernels, strides 1 to 3, padding 0 to 2, 1×1 kernels,
+  // batch 1 and 2, one channel and several.
+  struct ConvCase {
+    const char* label;
+    Shape x, w;
+    ConvGeometry g;
+  };
+  const std::vector<ConvCase> conv_cases = {
+      {"3x3 s1 p1", {2, 2, 5, 4}, {3, 2, 3, 3}, {1, 1, 1, 1}},
+      {"4x4 s2 p1", {1, 3, 6, 6}, {2, 3, 4, 4}, {2, 2, 1, 1}},
+      {"3x2 s(3,1) p(2,0)", {2, 1, 7, 5}, {2, 1, 3, 2}, {3, 1, 2, 0}},
+      {"1x1", {1, 3, 3, 2}, {4, 3, 1, 1}, {1, 1, 0, 0}},
+  };
+  for (const ConvCase& k : conv_cases) {
+    const ConvGeometry g = k.g;
+    const int64_t oh = conv_output_extent(k.x[2], k.w[2], g.stride_h, g.pad_h, "case");
+    const int64_t ow = conv_output_extent(k.x[3], k.w[3], g.stride_w, g.pad_w, "case");
+    const Shape y{k.x[0], k.w[0], oh, ow};
+    const int64_t h = k.x[2], w = k.x[3], kh = k.w[2], kw = k.w[3];
+    c.check(std::string("conv2d ") + k.label, [g](const Vs& x) { return conv2d(x[0], x[1], g); },
+            {c.any(k.x), c.any(k.w)});
+    c.check(std::string("conv2d_transpose ") + k.label,
+            [g, h, w](const Vs& x) { return conv2d_transpose(x[0], x[1], g, h, w); },
+            {c.any(y), c.any(k.w)});
+    c.check(std::string("conv2d_weight_gradient ") + k.label,
+            [g, kh, kw](const Vs& x) { return conv2d_weight_gradient(x[0], x[1], g, kh, kw); },
+            {c.any(k.x), c.any(y)});
+  }
   return c.take();
 }
 

@@ -416,8 +416,7 @@ Tensor<T> matrix_product(const Tensor<T>& a, const Tensor<T>& b, bool ta, bool t
   if (ka != kb)
     raise(ErrorKind::kBadShape, std::string("matmul: inner extents differ in ") + a.shape().str() +
                                     (ta ? "ᵀ" : "") + " · " + b.shape().str() + (tb ? "ᵀ" : ""));
-  static const bool eigen_single = (Eigen::setNbThreads(1), true);  // parallel.h
-  (void)eigen_single;
+  detail::ensure_eigen_single_threaded();
   using Matrix = Eigen::Matrix<T, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
   using Map = Eigen::Map<const Matrix>;
   Tensor<T> c = Tensor<T>::uninitialised(Shape{m, n});

@@ -11,6 +11,7 @@
 
 #include <vector>
 
+#include "engine/conv_geometry.h"
 #include "engine/tensor.h"
 
 namespace spar {
@@ -86,6 +87,24 @@ Tensor<T> pad(const Tensor<T>& x, int axis, int64_t before, int64_t after);
 // Joins tensors along `axis`; all other extents must agree.
 template <class T>
 Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis);
+
+// ---- 2-D convolution (NCHW), lowered to Eigen's GEMM (kernels_conv.cpp) ----
+
+// y[n,o,i,j] = Σ_{c,p,q} w[o,c,p,q] · x[n, c, i·s_h + p − pad_h, j·s_w + q − pad_w]
+// (cross-correlation, zero outside x). x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW].
+template <class T>
+Tensor<T> conv2d(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g);
+// The adjoint of conv2d with respect to its input, which is also the transposed
+// convolution: z: [N,O,OH,OW], w: [O,C,KH,KW] → [N,C,out_h,out_w], where conv2d of an
+// out_h × out_w input must give OH × OW (out_h − (s(OH−1) + KH − 2p) is the output padding).
+template <class T>
+Tensor<T> conv2d_transpose(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
+                           int64_t out_h, int64_t out_w);
+// The adjoint of conv2d with respect to its weight: x: [N,C,H,W], dy: [N,O,OH,OW] →
+// [O,C,kernel_h,kernel_w] = Σ_n dy_n · columns(x_n)ᵀ, summed over n in a fixed order.
+template <class T>
+Tensor<T> conv2d_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy, const ConvGeometry& g,
+                                 int64_t kernel_h, int64_t kernel_w);
 
 // Σ x, accumulated in double over fixed chunks.
 template <class T>

@@ -14,6 +14,7 @@
 
 #include <vector>
 
+#include "engine/kernels.h"
 #include "engine/tape.h"
 
 namespace spar {
@@ -80,6 +81,20 @@ template <class T>
 Var<T> broadcast_to(const Var<T>& x, const Shape& shape);
 template <class T>
 Var<T> sum_to(const Var<T>& x, const Shape& shape);  // adjoint of broadcast_to
+
+// ---- 2-D convolutions, NCHW (ops_conv.cpp; ConvGeometry and the formulas in kernels.h) ----
+// x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW] (cross-correlation with stride and zero padding).
+template <class T>
+Var<T> conv2d(const Var<T>& x, const Var<T>& w, const ConvGeometry& g);
+// The transposed convolution (conv2d's adjoint in its input): z: [N,O,OH,OW], w: [O,C,KH,KW]
+// → [N,C,out_h,out_w].
+template <class T>
+Var<T> conv2d_transpose(const Var<T>& z, const Var<T>& w, const ConvGeometry& g, int64_t out_h,
+                        int64_t out_w);
+// conv2d's adjoint in its weight: x: [N,C,H,W], dy: [N,O,OH,OW] → [O,C,kernel_h,kernel_w].
+template <class T>
+Var<T> conv2d_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
+                              int64_t kernel_h, int64_t kernel_w);
 
 // ---- reductions (an axis may be negative: -1 is the last) ----
 template <class T>

@@ -1,5 +1,6 @@
 #include "engine/parallel.h"
 
+#include <Eigen/Core>
 #include <string>
 
 #include "engine/error.h"
@@ -24,5 +25,12 @@ void set_thread_count(int n) {
   omp_set_num_threads(n);
 #endif
 }
+
+namespace detail {
+void ensure_eigen_single_threaded() {
+  static const bool done = (Eigen::setNbThreads(1), true);
+  (void)done;
+}
+}  // namespace detail
 
 }  // namespace spar

@@ -49,4 +49,10 @@ int thread_count();
 // Results do not depend on it.
 void set_thread_count(int n);
 
+namespace detail {
+// Switches Eigen's own GEMM threading off, once per process (see the top of this file).
+// Every kernel that calls Eigen's GEMM calls this first.
+void ensure_eigen_single_threaded();
+}  // namespace detail
+
 }  // namespace spar

@@ -83,7 +83,8 @@ std::vector<Var<T>> Tape<T>::gradient(const Var<T>& y, const std::vector<Var<T>>
 }
 
 template <class T>
-std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y, const std::vector<Var<T>>& wrt,
+std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y,
+                                                     const std::vector<Var<T>>& wrt,
                                                      const Var<T>& seed, GradientOptions options) {
   for (const Var<T>& x : wrt) {
     if (x.tape_ != this)
@@ -91,8 +92,8 @@ std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y, const std:
     check_current(x, "gradient");
   }
   if (seed.shape() != y.shape())
-    raise(ErrorKind::kBadShape, "gradient: seed of shape " + seed.shape().str() + " for a value of shape " +
-                                    y.shape().str());
+    raise(ErrorKind::kBadShape, "gradient: seed of shape " + seed.shape().str() +
+                                    " for a value of shape " + y.shape().str());
   std::vector<Var<T>> result;
   result.reserve(wrt.size());
   if (y.tape_ != this) {  // y is a constant: it depends on nothing

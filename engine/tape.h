@@ -88,6 +88,7 @@ struct OpArgs {
   bool flag_a = false, flag_b = false;
   Shape shape;
   std::array<int8_t, kMaxRank> perm{};
+  std::array<int64_t, 6> ints{};  // further integer parameters (a convolution's geometry)
 };
 
 namespace detail {
