@@ -5,6 +5,7 @@
 #include "cli/commands.h"
 #include "cli/output.h"
 #include "engine/gradient_check.h"
+#include "layers/gradient_cases.h"
 
 namespace spar {
 namespace cli {
@@ -17,7 +18,9 @@ struct Options {
 
 int run(const Options& o) {
   std::vector<GradientCheckResult> results;
-  for (const GradientCase& c : operation_gradient_cases()) {
+  std::vector<GradientCase> cases = operation_gradient_cases();
+  for (GradientCase& c : layer_gradient_cases()) cases.push_back(std::move(c));
+  for (const GradientCase& c : cases) {
     if (!o.only.empty() && c.name.find(o.only) == std::string::npos) continue;
     results.push_back(check_first_order(c));
     results.push_back(check_second_order(c));
@@ -58,11 +61,12 @@ int run(const Options& o) {
 
 Subcommand add_check_gradients(CLI::App& parent) {
   auto options = std::make_shared<Options>();
-  CLI::App* app = parent.add_subcommand("check-gradients",
-                                        "Verify every operation's gradient, first and second "
-                                        "order, against central differences in float64.\n"
-                                        "Exits 1 if any check fails.\n"
-                                        "Example: spar check-gradients --only matmul");
+  CLI::App* app =
+      parent.add_subcommand("check-gradients",
+                            "Verify the gradient of every operation and layer, first and second "
+                            "order, against central differences in float64.\n"
+                            "Exits 1 if any check fails.\n"
+                            "Example: spar check-gradients --only matmul");
   app->add_flag("--json", options->json, "Print the results as JSON instead of a table");
   app->add_option("--only", options->only, "Run only the checks whose name contains this text");
   return {app, [options] { return run(*options); }};

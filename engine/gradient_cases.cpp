@@ -15,22 +15,9 @@ using Op = std::function<V(const Vs&)>;
 
 class CaseList {
  public:
-  // Registers `name`: op folded into a scalar as Σ (w1·y + w2·y²), with w1, w2 random and
-  // fixed, so second-order checks differentiate the op's adjoint as well.
+  // Registers `name`: see folded_case() in gradient_check.h.
   void check(const std::string& name, const Op& op, std::vector<D> inputs) {
-    Shape out_shape;
-    {
-      NoRecordScope no_record;
-      Vs xs(inputs.begin(), inputs.end());
-      out_shape = op(xs).shape();
-    }
-    V w1(rng_.uniform<double>(out_shape, -1, 1)), w2(rng_.uniform<double>(out_shape, -0.5, 0.5));
-    cases_.push_back({name,
-                      [op, w1, w2](const Vs& xs) {
-                        V y = op(xs);
-                        return sum(add(multiply(w1, y), multiply(w2, square(y))));
-                      },
-                      std::move(inputs)});
+    cases_.push_back(folded_case(name, op, std::move(inputs), rng_));
   }
   D any(const Shape& s, double lo = -2, double hi = 2) { return rng_.uniform<double>(s, lo, hi); }
   D positive(const Shape& s) { return rng_.uniform<double>(s, 0.5, 2.0); }
@@ -48,6 +35,22 @@ class CaseList {
 };
 
 }  // namespace
+
+GradientCase folded_case(const std::string& name, const Op& op, std::vector<D> inputs, Rng& rng) {
+  Shape out_shape;
+  {
+    NoRecordScope no_record;
+    Vs xs(inputs.begin(), inputs.end());
+    out_shape = op(xs).shape();
+  }
+  V w1(rng.uniform<double>(out_shape, -1, 1)), w2(rng.uniform<double>(out_shape, -0.5, 0.5));
+  return {name,
+          [op, w1, w2](const Vs& xs) {
+            V y = op(xs);
+            return sum(add(multiply(w1, y), multiply(w2, square(y))));
+          },
+          std::move(inputs)};
+}
 
 std::vector<GradientCase> operation_gradient_cases() {
   CaseList c;

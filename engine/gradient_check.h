@@ -19,6 +19,7 @@
 #include <string>
 #include <vector>
 
+#include "engine/random.h"
 #include "engine/tape.h"
 
 namespace spar {
@@ -53,6 +54,13 @@ GradientCheckResult check_first_order(const GradientCase& c,
                                       const GradientCheckOptions& options = {});
 GradientCheckResult check_second_order(const GradientCase& c,
                                        const GradientCheckOptions& options = {});
+
+// A case for an operation `op` whose output is folded into a scalar as Σ(w₁·y + w₂·y²) with
+// w₁ ~ U(−1, 1) and w₂ ~ U(−0.5, 0.5) drawn once from `rng`, so that second-order checks also
+// differentiate through op's adjoint. Evaluates op once (unrecorded) to learn its output shape.
+GradientCase folded_case(const std::string& name,
+                         const std::function<Var<double>(const std::vector<Var<double>>&)>& op,
+                         std::vector<Tensor<double>> inputs, Rng& rng);
 
 // Every engine operation, on random inputs of several shapes (including size-1 and
 // broadcast axes), each output folded into a scalar by a fixed nonlinear random weighting

@@ -1,0 +1,92 @@
+// Convolution layers (NCHW): Conv2d, ConvTranspose2d, and the parameter-free resampling
+// layers AveragePool2d and Upsample2d.
+// Thread safety: as for layers (one thread at a time).
+#pragma once
+
+#include "layers/init.h"
+#include "layers/layer.h"
+#include "layers/spectral_norm.h"
+
+namespace spar {
+
+struct ConvOptions {
+  int64_t kernel_h = 3, kernel_w = 3;  // window size. Default 3×3.
+  ConvGeometry geometry;               // stride and zero padding. Default stride 1, no padding.
+  int64_t output_pad_h = 0, output_pad_w = 0;  // transposed convolution only: extra rows and
+                                               // columns at the end, 0 <= a < stride
+  bool bias = true;                            // a learned offset per output channel. Default on.
+  Init init = Init::kDcganNormal;  // the weight's initial distribution; the bias starts at 0
+  bool spectral_norm = false;      // divide the weight by its largest singular value
+};
+
+// [N, in, H, W] → [N, out, OH, OW]; weight [out, in, KH, KW], bias [out].
+template <class T>
+class Conv2d final : public Layer<T> {
+ public:
+  Conv2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  std::string describe() const override;
+
+ private:
+  int64_t in_, out_;
+  ConvOptions options_;
+  Tensor<T> weight_, bias_;
+  SpectralNormaliser<T> normaliser_;
+};
+
+// The transposed convolution: [N, in, H, W] → [N, out, s(H−1) + a + KH − 2p, ...];
+// weight [in, out, KH, KW], bias [out]. With 4×4 kernels, stride 2, padding 1 it doubles
+// the spatial size, as in DCGAN generators.
+template <class T>
+class ConvTranspose2d final : public Layer<T> {
+ public:
+  ConvTranspose2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  std::string describe() const override;
+
+ private:
+  int64_t in_, out_;
+  ConvOptions options_;
+  Tensor<T> weight_, bias_;
+  SpectralNormaliser<T> normaliser_;
+};
+
+// Mean over non-overlapping factor × factor windows: [N, C, H, W] → [N, C, H/f, W/f]
+// (H and W must be multiples of f).
+template <class T>
+class AveragePool2d final : public Layer<T> {
+ public:
+  explicit AveragePool2d(int64_t factor) : factor_(factor) {}
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  std::string describe() const override;
+
+ private:
+  int64_t factor_;
+};
+
+// Nearest-neighbour upsampling: each pixel repeated factor × factor times.
+template <class T>
+class Upsample2d final : public Layer<T> {
+ public:
+  explicit Upsample2d(int64_t factor) : factor_(factor) {}
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  std::string describe() const override;
+
+ private:
+  int64_t factor_;
+};
+
+extern template class Conv2d<float>;
+extern template class Conv2d<double>;
+extern template class ConvTranspose2d<float>;
+extern template class ConvTranspose2d<double>;
+extern template class AveragePool2d<float>;
+extern template class AveragePool2d<double>;
+extern template class Upsample2d<float>;
+extern template class Upsample2d<double>;
+
+}  // namespace spar

@@ -1,0 +1,91 @@
+// Layer<T>: a parametrised building block made only of engine operations, and Context<T>,
+// the per-step binding that turns a layer's parameter tensors into tape variables.
+//
+// A layer owns its parameters (trained) and buffers (saved but not trained: running
+// statistics, power-iteration vectors) as plain tensors, and reports them with stable,
+// hierarchical names ("critic.block2.conv.weight") that checkpoints use. It does not own a
+// tape: each forward pass receives a Context that says whether this is a training step and
+// where to record. Training versus evaluation is therefore a property of the step (the
+// Context), not hidden state in the layers, so one model can serve a training step and a
+// sampling call without being switched back and forth.
+//
+// Thread safety: a layer and a Context belong to one thread at a time.
+#pragma once
+
+#include <map>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "engine/ops.h"
+#include "engine/random.h"
+
+namespace spar {
+
+template <class T>
+struct NamedTensor {
+  std::string name;
+  Tensor<T>* tensor;  // owned by the layer; valid while the layer lives
+};
+
+template <class T>
+class Context {
+ public:
+  // `tape`: where parameters are recorded (null: nothing is, as when sampling).
+  // `training`: use batch statistics, draw dropout masks, advance power iterations.
+  // `rng`: the stream dropout draws from (required only by layers that draw).
+  Context(Tape<T>* tape, bool training, Rng* rng = nullptr)
+      : tape_(tape), training_(training), rng_(rng) {}
+
+  bool training() const { return training_; }
+  Tape<T>* tape() const { return tape_; }
+  // The stream for random draws; raises kBadArgument naming `who` when none was given.
+  Rng& rng(const char* who);
+
+  // The variable standing for `parameter` in this step: recorded on the tape the first time
+  // it is used, the same Var afterwards; a constant when there is no tape.
+  Var<T> use(Tensor<T>& parameter);
+  // Makes `parameter` stand for `v` in this step (gradient checks feed their own variables).
+  void bind(Tensor<T>& parameter, const Var<T>& v) { bound_[&parameter] = v; }
+  // The variable `parameter` was given in this step, or an undefined Var if it was not used.
+  Var<T> variable_of(const Tensor<T>& parameter) const;
+
+ private:
+  Tape<T>* tape_;
+  bool training_;
+  Rng* rng_;
+  std::map<const Tensor<T>*, Var<T>> bound_;
+};
+
+template <class T>
+class Layer {
+ public:
+  virtual ~Layer() = default;
+  virtual Var<T> forward(const Var<T>& x, Context<T>& ctx) = 0;
+  // Appends the trained parameters, named "<prefix>.<name>" (or "<name>" for an empty prefix).
+  virtual void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+    (void)prefix;
+    (void)out;
+  }
+  // Appends saved state that is not trained (running statistics, power-iteration vectors).
+  virtual void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+    (void)prefix;
+    (void)out;
+  }
+  // One line for people, e.g. "conv2d 3→64, 4×4, stride 2, padding 1".
+  virtual std::string describe() const = 0;
+};
+
+// "<prefix>.<name>", or just the name when the prefix is empty.
+std::string join_name(const std::string& prefix, const std::string& name);
+
+// The gradients of the one-element `loss` with respect to each parameter, in order, as plain
+// tensors (zeros for a parameter the step did not use).
+template <class T>
+std::vector<Tensor<T>> parameter_gradients(const Var<T>& loss, const Context<T>& ctx,
+                                           const std::vector<NamedTensor<T>>& params);
+
+extern template class Context<float>;
+extern template class Context<double>;
+
+}  // namespace spar

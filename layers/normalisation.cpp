@@ -1,0 +1,94 @@
+#include "layers/normalisation.h"
+
+#include <string>
+
+#include "engine/error.h"
+#include "engine/kernels.h"
+
+namespace spar {
+
+template <class T>
+BatchNorm<T>::BatchNorm(int64_t channels, const BatchNormOptions& options)
+    : channels_(channels),
+      options_(options),
+      scale_(Tensor<T>::full({channels}, T(1))),
+      shift_(Tensor<T>::zeros({channels})),
+      running_mean_(Tensor<T>::zeros({channels})),
+      running_variance_(Tensor<T>::full({channels}, T(1))) {}
+
+template <class T>
+Var<T> BatchNorm<T>::forward(const Var<T>& x, Context<T>& ctx) {
+  const Shape& s = x.shape();
+  if ((s.rank() != 2 && s.rank() != 4) || s[1] != channels_)
+    raise(ErrorKind::kBadShape, describe() + ": input has shape " + s.str() + ", expected [N, " +
+                                    std::to_string(channels_) + "] or [N, " +
+                                    std::to_string(channels_) + ", H, W]");
+  const Shape stat = s.rank() == 2 ? Shape{1, channels_} : Shape{1, channels_, 1, 1};
+  const int64_t m = s.numel() / channels_;  // values per channel
+  Var<T> mean, variance;
+  if (ctx.training()) {
+    if (m < 2)
+      raise(ErrorKind::kBadShape,
+            describe() + ": a training batch needs two or more values per channel, got " + s.str());
+    mean = scale(sum_to(x, stat), 1.0 / static_cast<double>(m));
+    variance = scale(sum_to(square(subtract(x, mean)), stat), 1.0 / static_cast<double>(m));
+    const double r = options_.running_rate,
+                 unbiased = static_cast<double>(m) / static_cast<double>(m - 1);
+    const Tensor<T> batch_mean = mean.value().reshape({channels_}),
+                    batch_variance = variance.value().reshape({channels_});
+    running_mean_ = kernels::binary(kernels::Binary::kAdd, kernels::scale(running_mean_, 1 - r),
+                                    kernels::scale(batch_mean, r), "batch norm");
+    running_variance_ =
+        kernels::binary(kernels::Binary::kAdd, kernels::scale(running_variance_, 1 - r),
+                        kernels::scale(batch_variance, r * unbiased), "batch norm");
+  } else {
+    mean = Var<T>(running_mean_.reshape(stat));
+    variance = Var<T>(running_variance_.reshape(stat));
+  }
+  Var<T> normalised = divide(subtract(x, mean), sqrt(add_scalar(variance, options_.epsilon)));
+  if (!options_.affine) return normalised;
+  return add(multiply(normalised, reshape(ctx.use(scale_), stat)), reshape(ctx.use(shift_), stat));
+}
+
+template <class T>
+void BatchNorm<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  if (!options_.affine) return;
+  out.push_back({join_name(prefix, "scale"), &scale_});
+  out.push_back({join_name(prefix, "shift"), &shift_});
+}
+
+template <class T>
+void BatchNorm<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  out.push_back({join_name(prefix, "running_mean"), &running_mean_});
+  out.push_back({join_name(prefix, "running_variance"), &running_variance_});
+}
+
+template <class T>
+std::string BatchNorm<T>::describe() const {
+  return "batch normalisation, " + std::to_string(channels_) + " channels";
+}
+
+template <class T>
+Var<T> MinibatchStddev<T>::forward(const Var<T>& x, Context<T>&) {
+  const Shape& s = x.shape();
+  if ((s.rank() != 2 && s.rank() != 4) || s[0] < 2)
+    raise(ErrorKind::kBadShape, describe() + ": input has shape " + s.str() +
+                                    ", expected [N, F] or [N, C, H, W] with N ≥ 2");
+  const Var<T> centred = subtract(x, mean(x, 0, true));
+  const Var<T> stddev = sqrt(add_scalar(mean(square(centred), 0, true), epsilon_));
+  const Var<T> average = mean(stddev);  // one number for the batch
+  const Shape column = s.rank() == 2 ? Shape{s[0], 1} : Shape{s[0], 1, s[2], s[3]};
+  return concat<T>({x, broadcast_to(average, column)}, 1);
+}
+
+template <class T>
+std::string MinibatchStddev<T>::describe() const {
+  return "minibatch standard deviation feature";
+}
+
+template class BatchNorm<float>;
+template class BatchNorm<double>;
+template class MinibatchStddev<float>;
+template class MinibatchStddev<double>;
+
+}  // namespace spar

@@ -1,0 +1,59 @@
+// Batch normalisation (Ioffe & Szegedy 2015) and the minibatch standard-deviation feature
+// (Karras et al. 2018).
+// Thread safety: as for layers (one thread at a time).
+#pragma once
+
+#include "layers/layer.h"
+
+namespace spar {
+
+struct BatchNormOptions {
+  double epsilon = 1e-5;      // added to the variance before the square root. Default 1e-5.
+  double running_rate = 0.1;  // weight of the newest batch in the running statistics:
+                              // running ← (1 − r)·running + r·batch. Default 0.1.
+  bool affine = true;         // learn a scale γ (starts at 1) and shift β (starts at 0)
+};
+
+// Normalises each channel over the batch (and the spatial axes for [N, C, H, W] input):
+// x̂ = (x − μ_B) / √(σ²_B + ε), y = γ·x̂ + β (Ioffe & Szegedy 2015, Algorithm 1), with μ_B and
+// σ²_B the batch mean and (biased) variance. Training steps also update the running mean and
+// the running unbiased variance m/(m−1)·σ²_B (Algorithm 2); evaluation steps normalise with
+// those. Accepts [N, C] and [N, C, H, W]. Parameters "scale", "shift"; buffers
+// "running_mean", "running_variance".
+template <class T>
+class BatchNorm final : public Layer<T> {
+ public:
+  BatchNorm(int64_t channels, const BatchNormOptions& options = {});
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  std::string describe() const override;
+
+ private:
+  int64_t channels_;
+  BatchNormOptions options_;
+  Tensor<T> scale_, shift_, running_mean_, running_variance_;
+};
+
+// Appends one feature holding the batch's average standard deviation: the standard deviation
+// of each feature over the batch, √(mean((x − mean x)²) + ε), averaged over all features and
+// positions, broadcast as an extra channel ([N, C, H, W] → [N, C+1, H, W]) or column
+// ([N, F] → [N, F+1]). A discriminator can then see a lack of variety (Karras et al. 2018,
+// with one group spanning the whole batch).
+template <class T>
+class MinibatchStddev final : public Layer<T> {
+ public:
+  explicit MinibatchStddev(double epsilon = 1e-8) : epsilon_(epsilon) {}
+  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  std::string describe() const override;
+
+ private:
+  double epsilon_;
+};
+
+extern template class BatchNorm<float>;
+extern template class BatchNorm<double>;
+extern template class MinibatchStddev<float>;
+extern template class MinibatchStddev<double>;
+
+}  // namespace spar

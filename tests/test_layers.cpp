@@ -1,0 +1,142 @@
+// Layers: every layer's gradients (first and second order, float64), parameter naming,
+// saving and loading through an archive, and the initialisers' distributions against the
+// formulas of their papers.
+#include <catch2/catch.hpp>
+#include <cmath>
+
+#include "layers/activation.h"
+#include "layers/convolution.h"
+#include "layers/dense.h"
+#include "layers/gradient_cases.h"
+#include "layers/init.h"
+#include "layers/normalisation.h"
+#include "layers/sequential.h"
+#include "tests/support.h"
+
+using namespace spar;
+
+TEST_CASE("every layer's gradients match central differences, first and second order",
+          "[layers][gradient]") {
+  for (const GradientCase& c : layer_gradient_cases()) {
+    const GradientCheckResult first = check_first_order(c), second = check_second_order(c);
+    INFO(c.name << ": first " << first.max_rel_error << ", second " << second.max_rel_error);
+    CHECK(first.max_rel_error <= 1e-6);
+    CHECK(second.max_rel_error <= 1e-4);
+  }
+}
+
+namespace {
+Sequential<float> small_critic(Rng& rng) {
+  Sequential<float> net;
+  ConvOptions conv;
+  conv.kernel_h = conv.kernel_w = 4;
+  conv.geometry = {2, 2, 1, 1};
+  auto& block = net.emplace<Sequential<float>>("block1");
+  block.emplace<Conv2d<float>>("conv", 3, 8, conv, rng);
+  block.emplace<BatchNorm<float>>("norm", 8);
+  block.emplace<Activation<float>>("act", ActivationKind::kLeakyRelu, 0.2);
+  net.emplace<Reshape<float>>("flat", Shape{8 * 4 * 4});
+  net.emplace<Dense<float>>("out", 128, 1, DenseOptions{}, rng);
+  return net;
+}
+}  // namespace
+
+TEST_CASE("parameters and buffers carry stable hierarchical names", "[layers]") {
+  Rng rng(1, 1);
+  Sequential<float> net = small_critic(rng);
+  std::vector<std::string> names;
+  for (const auto& p : net.named_parameters("critic")) names.push_back(p.name);
+  CHECK(names == std::vector<std::string>{"critic.block1.conv.weight", "critic.block1.conv.bias",
+                                          "critic.block1.norm.scale", "critic.block1.norm.shift",
+                                          "critic.out.weight", "critic.out.bias"});
+  std::vector<std::string> buffers;
+  for (const auto& b : net.named_buffers("critic")) buffers.push_back(b.name);
+  CHECK(buffers == std::vector<std::string>{"critic.block1.norm.running_mean",
+                                            "critic.block1.norm.running_variance"});
+  CHECK_THROWS_AS(net.emplace<Activation<float>>("out", ActivationKind::kTanh), Error);
+}
+
+TEST_CASE("a model saved to an archive loads back exactly and refuses another architecture",
+          "[layers]") {
+  Rng rng(2, 1);
+  Sequential<float> a = small_critic(rng), b = small_critic(rng);  // different weights
+  Tape<float> tape;
+  Context<float> train(&tape, true);
+  a.forward(Var<float>(rng.uniform<float>({4, 3, 8, 8})), train);  // running statistics move
+  Archive archive;
+  a.save(archive, "critic");
+  b.load(Archive::from_bytes(archive.to_bytes(), "memory"), "critic");
+  const auto pa = a.named_parameters(), pb = b.named_parameters();
+  for (size_t i = 0; i < pa.size(); ++i) CHECK(testing::same_bits(*pa[i].tensor, *pb[i].tensor));
+  CHECK(testing::same_bits(*a.named_buffers()[0].tensor, *b.named_buffers()[0].tensor));
+
+  Sequential<float> other;
+  other.emplace<Dense<float>>("out", 64, 1, DenseOptions{}, rng);
+  std::string message;
+  CHECK(testing::error_kind_of([&] { other.load(archive, "critic"); }, &message) ==
+        ErrorKind::kCorruptCheckpoint);
+  CHECK_THAT(message, Catch::Contains("critic.out.weight") && Catch::Contains("[128, 1]"));
+}
+
+TEST_CASE("initialisers follow their papers' distributions", "[layers][init]") {
+  Rng rng(3, 1);
+  const int64_t fan_in = 300, fan_out = 200;
+  auto moments = [](const Tensor<double>& t) {
+    double m = 0, v = 0;
+    for (double x : t.to_vector()) m += x;
+    m /= t.numel();
+    for (double x : t.to_vector()) v += (x - m) * (x - m);
+    return std::make_pair(m, v / t.numel());
+  };
+  const int64_t n = 200000;
+  // DCGAN (Radford et al. 2015): N(0, 0.02²).
+  auto dcgan = moments(initial_weight<double>({n}, fan_in, fan_out, Init::kDcganNormal, rng));
+  CHECK(std::abs(dcgan.first) < 5 * 0.02 / std::sqrt(double(n)));
+  CHECK(std::sqrt(dcgan.second) == Approx(0.02).epsilon(0.01));
+  // Glorot & Bengio 2010, eq. 16: U(−a, a), a = √(6/(fan_in + fan_out)), variance a²/3.
+  const Tensor<double> glorot =
+      initial_weight<double>({n}, fan_in, fan_out, Init::kGlorotUniform, rng);
+  const double a = std::sqrt(6.0 / (fan_in + fan_out));
+  double largest = 0;
+  for (double x : glorot.to_vector()) largest = std::max(largest, std::abs(x));
+  CHECK(largest <= a);
+  CHECK(largest > 0.99 * a);  // 200,000 draws reach the edge of the range
+  CHECK(moments(glorot).second == Approx(a * a / 3).epsilon(0.01));
+  // He et al. 2015: N(0, 2/fan_in).
+  CHECK(moments(initial_weight<double>({n}, fan_in, fan_out, Init::kHeNormal, rng)).second ==
+        Approx(2.0 / fan_in).epsilon(0.01));
+}
+
+TEST_CASE("dropout keeps the expectation and is the identity in evaluation steps", "[layers]") {
+  Rng stream(4, 1);
+  Dropout<double> drop(0.25);
+  const Var<double> x(Tensor<double>::full({100000}, 1.0));
+  Context<double> train(nullptr, true, &stream), eval(nullptr, false);
+  const Tensor<double> y = drop.forward(x, train).value();
+  int64_t zeros = 0;
+  double total = 0;
+  for (double v : y.to_vector()) {
+    zeros += v == 0;
+    total += v;
+  }
+  // Binomial(1e5, 0.25): standard deviation ≈ 137 (a fact of the trade).
+  CHECK(std::abs(zeros - 25000) < 5 * 137);
+  CHECK(total / 1e5 == Approx(1.0).epsilon(0.01));
+  CHECK(testing::same_bits(drop.forward(x, eval).value(), x.value()));
+  Context<double> no_stream(nullptr, true);
+  CHECK_THROWS_WITH(drop.forward(x, no_stream), Catch::Contains("dropout"));
+}
+
+TEST_CASE("layer shape errors name the layer and the shapes", "[layers]") {
+  Rng rng(5, 1);
+  Dense<float> dense(3, 4, DenseOptions{}, rng);
+  Context<float> ctx(nullptr, false);
+  CHECK_THROWS_WITH(dense.forward(Var<float>(Tensor<float>::zeros({2, 5})), ctx),
+                    Catch::Contains("dense 3→4") && Catch::Contains("[2, 5]"));
+  Conv2d<float> conv(3, 8, ConvOptions{}, rng);
+  CHECK_THROWS_WITH(conv.forward(Var<float>(Tensor<float>::zeros({1, 2, 5, 5})), ctx),
+                    Catch::Contains("conv2d 3→8") && Catch::Contains("[1, 2, 5, 5]"));
+  AveragePool2d<float> pool(2);
+  CHECK_THROWS_WITH(pool.forward(Var<float>(Tensor<float>::zeros({1, 1, 5, 4})), ctx),
+                    Catch::Contains("multiples of 2"));
+}
