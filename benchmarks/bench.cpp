@@ -9,6 +9,7 @@ namespace spar {
 namespace bench {
 
 void register_engine_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
+void register_conv_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
 
 namespace {
 // Seconds per call of one timed batch lasting at least min_seconds.
@@ -49,6 +50,7 @@ const std::vector<std::pair<std::string, Benchmark>>& benchmarks() {
   static const std::vector<std::pair<std::string, Benchmark>> list = [] {
     std::vector<std::pair<std::string, Benchmark>> l;
     register_engine_benchmarks(l);
+    register_conv_benchmarks(l);
     return l;
   }();
   return list;

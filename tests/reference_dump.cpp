@@ -88,6 +88,9 @@ const CaseInfo kCases[] = {
     {"softmax", 1, 1, 1, "AXIS"},
     {"softmax_cross_entropy", 2, 1, 1, "AXIS (operands: logits, targets)"},
     {"binary_cross_entropy_with_logits", 2, 0, 0, "(operands: logits, targets)"},
+    {"conv2d", 2, 4, 4, "STRIDE_H STRIDE_W PAD_H PAD_W (operands: x [N,C,H,W], w [O,C,KH,KW])"},
+    {"conv2d_transpose", 2, 6, 6,
+     "STRIDE_H STRIDE_W PAD_H PAD_W OUT_H OUT_W (operands: z [N,O,OH,OW], w [O,C,KH,KW])"},
 };
 
 const CaseInfo* find_case(const std::string& name) {
@@ -99,6 +102,16 @@ const CaseInfo* find_case(const std::string& name) {
 bool flag(long long v) {
   if (v != 0 && v != 1) usage_error("a flag must be 0 or 1, got " + std::to_string(v));
   return v == 1;
+}
+
+// The first four integer parameters of a convolution case: stride_h stride_w pad_h pad_w.
+spar::ConvGeometry geometry(const std::vector<long long>& p) {
+  spar::ConvGeometry g;
+  g.stride_h = p[0];
+  g.stride_w = p[1];
+  g.pad_h = p[2];
+  g.pad_w = p[3];
+  return g;
 }
 
 template <class T>
@@ -132,6 +145,8 @@ Var<T> evaluate(const std::string& c, const std::vector<Var<T>>& x,
     return spar::softmax_cross_entropy(x[0], x[1], static_cast<int>(p[0]));
   if (c == "binary_cross_entropy_with_logits")
     return spar::binary_cross_entropy_with_logits(x[0], x[1]);
+  if (c == "conv2d") return spar::conv2d(x[0], x[1], geometry(p));
+  if (c == "conv2d_transpose") return spar::conv2d_transpose(x[0], x[1], geometry(p), p[4], p[5]);
   usage_error("case '" + c + "' has no evaluation");  // kCases and this list disagree
 }
 
