@@ -1,0 +1,103 @@
+#include "recipes/architectures.h"
+
+#include "engine/error.h"
+#include "layers/activation.h"
+#include "layers/convolution.h"
+#include "layers/dense.h"
+#include "layers/normalisation.h"
+
+namespace spar {
+namespace {
+using S = Sequential<float>;
+std::string numbered(const char* base, int i) {
+  return base + std::to_string(i);
+}
+}  // namespace
+
+GanPair make_mlp_pair(const MlpPairOptions& o, Rng& rng) {
+  GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent, Shape{o.data}};
+  DenseOptions plain;
+  DenseOptions critic_dense = plain;
+  critic_dense.spectral_norm = o.spectral_norm;
+  int64_t in = o.latent;
+  for (int i = 1; i <= o.depth; ++i) {
+    pair.generator->emplace<Dense<float>>(numbered("dense", i), in, o.width, plain, rng);
+    pair.generator->emplace<Activation<float>>(numbered("act", i), ActivationKind::kRelu);
+    in = o.width;
+  }
+  pair.generator->emplace<Dense<float>>("out", in, o.data, plain, rng);
+  in = o.data;
+  for (int i = 1; i <= o.depth; ++i) {
+    pair.critic->emplace<Dense<float>>(numbered("dense", i), in, o.width, critic_dense, rng);
+    pair.critic->emplace<Activation<float>>(numbered("act", i), ActivationKind::kLeakyRelu, 0.2);
+    in = o.width;
+  }
+  pair.critic->emplace<Dense<float>>("out", in, 1, critic_dense, rng);
+  return pair;
+}
+
+GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
+  int doublings = 0;
+  int64_t start = 0;
+  if (o.image_size == 28)
+    doublings = 2, start = 7;
+  else if (o.image_size == 32)
+    doublings = 3, start = 4;
+  else if (o.image_size == 64)
+    doublings = 4, start = 4;
+  else
+    raise(ErrorKind::kBadRecipe,
+          "image size " + std::to_string(o.image_size) + " is not one of 28, 32, 64");
+  if (o.channels != 1 && o.channels != 3)
+    raise(ErrorKind::kBadRecipe, "channels " + std::to_string(o.channels) + " is not 1 or 3");
+  GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent,
+               Shape{o.channels, o.image_size, o.image_size}};
+  ConvOptions up;
+  up.kernel_h = up.kernel_w = 4;
+  up.geometry = {2, 2, 1, 1};
+  up.bias = false;                                 // followed by batch normalisation
+  const int64_t top = o.width << (doublings - 1);  // channels of the smallest map
+
+  S& g = *pair.generator;
+  g.emplace<Dense<float>>("project", o.latent, top * start * start, DenseOptions{false}, rng);
+  g.emplace<Reshape<float>>("map", Shape{top, start, start});
+  g.emplace<BatchNorm<float>>("norm0", top);
+  g.emplace<Activation<float>>("act0", ActivationKind::kRelu);
+  int64_t c = top;
+  for (int i = 1; i <= doublings; ++i) {
+    const bool last = i == doublings;
+    ConvOptions layer = up;
+    layer.bias = last;
+    const int64_t next = last ? o.channels : c / 2;
+    g.emplace<ConvTranspose2d<float>>(numbered("up", i), c, next, layer, rng);
+    if (!last) {
+      g.emplace<BatchNorm<float>>(numbered("norm", i), next);
+      g.emplace<Activation<float>>(numbered("act", i), ActivationKind::kRelu);
+    }
+    c = next;
+  }
+  g.emplace<Activation<float>>("out", ActivationKind::kTanh);
+
+  S& d = *pair.critic;
+  ConvOptions down = up;
+  down.spectral_norm = o.spectral_norm;
+  c = o.channels;
+  int64_t size = o.image_size;
+  for (int i = 1; i <= doublings; ++i) {
+    const int64_t next = o.width << (i - 1);
+    ConvOptions layer = down;
+    layer.bias = i == 1 || o.spectral_norm;  // no bias before batch normalisation
+    d.emplace<Conv2d<float>>(numbered("down", i), c, next, layer, rng);
+    if (i > 1 && !o.spectral_norm) d.emplace<BatchNorm<float>>(numbered("norm", i), next);
+    d.emplace<Activation<float>>(numbered("act", i), ActivationKind::kLeakyRelu, 0.2);
+    c = next;
+    size /= 2;
+  }
+  d.emplace<Reshape<float>>("flat", Shape{c * size * size});
+  DenseOptions score;
+  score.spectral_norm = o.spectral_norm;
+  d.emplace<Dense<float>>("score", c * size * size, 1, score, rng);
+  return pair;
+}
+
+}  // namespace spar

@@ -1,0 +1,47 @@
+// Reference architectures: generator and discriminator pairs built from layers/.
+//
+//   MLP pair, for 2-D points and tables: latent → [dense, relu] × depth → dense → data;
+//     data → [dense, leaky relu 0.2] × depth → dense → one score.
+//   DCGAN-style pair (Radford et al. 2015) for 28, 32 and 64-pixel images, grayscale or RGB:
+//     the generator maps the latent vector with a dense layer to a 7×7 (28 px) or 4×4 map and
+//     doubles it with 4×4 stride-2 transposed convolutions (batch normalisation and relu
+//     between, tanh at the output); the discriminator halves the size with 4×4 stride-2
+//     convolutions (leaky relu 0.2; batch normalisation except after the first, or spectral
+//     normalisation instead) and ends in a dense layer to one score.
+// Weights start N(0, 0.02²) as in DCGAN. Names: "generator.*" and "critic.*" in checkpoints.
+// Thread safety: construction only; the models follow the layers' rule.
+#pragma once
+
+#include <memory>
+
+#include "layers/sequential.h"
+
+namespace spar {
+
+struct GanPair {
+  std::unique_ptr<Sequential<float>> generator;
+  std::unique_ptr<Sequential<float>> critic;
+  int64_t latent = 0;
+  Shape sample_shape;  // one generated sample, e.g. [2] or [1, 28, 28]
+};
+
+struct MlpPairOptions {
+  int64_t latent = 8;          // latent vector size
+  int64_t data = 2;            // features per sample
+  int64_t width = 128;         // units per hidden layer
+  int depth = 3;               // hidden layers in each network
+  bool spectral_norm = false;  // spectral normalisation in the critic's dense layers
+};
+GanPair make_mlp_pair(const MlpPairOptions& options, Rng& rng);
+
+struct DcganPairOptions {
+  int64_t image_size = 32;     // 28, 32 or 64
+  int64_t channels = 3;        // 1 (grayscale) or 3 (RGB)
+  int64_t latent = 100;        // latent vector size
+  int64_t width = 64;          // channels of the critic's first convolution; doubled per step
+  bool spectral_norm = false;  // critic: spectral instead of batch normalisation
+};
+// Raises kBadRecipe for an image size other than 28, 32 or 64, or channels other than 1 or 3.
+GanPair make_dcgan_pair(const DcganPairOptions& options, Rng& rng);
+
+}  // namespace spar

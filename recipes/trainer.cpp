@@ -1,0 +1,159 @@
+#include "recipes/trainer.h"
+
+#include <cmath>
+
+#include "engine/error.h"
+#include "engine/kernels.h"
+
+namespace spar {
+namespace {
+
+std::vector<Tensor<float>*> tensors_of(const std::vector<NamedTensor<float>>& named) {
+  std::vector<Tensor<float>*> out;
+  for (const NamedTensor<float>& n : named) out.push_back(n.tensor);
+  return out;
+}
+
+double mean_of(const Var<float>& v) {
+  return kernels::sum_all(v.value()) / static_cast<double>(v.numel());
+}
+
+void save_rng(Archive& archive, const std::string& name, const Rng& rng) {
+  archive.put_int(name + ".position", static_cast<int64_t>(rng.position()));
+}
+void load_rng(const Archive& archive, const std::string& name, Rng& rng) {
+  rng.set_position(static_cast<uint64_t>(archive.integer(name + ".position")));
+}
+
+}  // namespace
+
+MixtureSource::MixtureSource(Mixture mixture, uint64_t seed)
+    : mixture_(std::move(mixture)), rng_(seed, derive_stream(seed, "data")) {}
+
+void MixtureSource::save(Archive& archive, const std::string& prefix) const {
+  save_rng(archive, prefix + ".stream", rng_);
+}
+void MixtureSource::load(const Archive& archive, const std::string& prefix) {
+  load_rng(archive, prefix + ".stream", rng_);
+}
+
+Trainer::Trainer(GanPair pair, std::unique_ptr<DataSource> data, const TrainerOptions& options)
+    : pair_(std::move(pair)),
+      data_(std::move(data)),
+      options_(options),
+      generator_adam_(options.generator_optimiser),
+      critic_adam_(options.critic_optimiser),
+      latent_rng_(options.seed, derive_stream(options.seed, "latent")),
+      dropout_rng_(options.seed, derive_stream(options.seed, "dropout")),
+      penalty_rng_(options.seed, derive_stream(options.seed, "penalty")) {
+  if (options.critic_steps < 1 || options.batch < 2)
+    raise(ErrorKind::kBadRecipe, "trainer: critic steps must be ≥ 1 and the batch ≥ 2");
+  if (data_->sample_shape() != pair_.sample_shape)
+    raise(ErrorKind::kBadRecipe, "trainer: the data's samples have shape " +
+                                     data_->sample_shape().str() + " but the generator makes " +
+                                     pair_.sample_shape.str());
+  generator_params_ = pair_.generator->named_parameters("generator");
+  critic_params_ = pair_.critic->named_parameters("critic");
+  for (const NamedTensor<float>& p : generator_params_) average_.push_back(p.tensor->clone());
+}
+
+double Trainer::critic_step() {
+  const int64_t n = options_.batch;
+  Tensor<float> fake;
+  {
+    NoRecordScope constant;  // the critic step does not train the generator
+    Context<float> g(nullptr, true, &dropout_rng_);
+    fake = pair_.generator->forward(Var<float>(draw_latent(n, latent_rng_)), g).value();
+  }
+  const Tensor<float> real = data_->next_batch(n);
+  tape_.clear();
+  Context<float> ctx(&tape_, true, &dropout_rng_);
+  Sequential<float>& critic = *pair_.critic;
+  const Var<float> real_scores = critic.forward(Var<float>(real), ctx);
+  const Var<float> fake_scores = critic.forward(Var<float>(fake), ctx);
+  Var<float> loss =
+      discriminator_loss(options_.objective, real_scores, fake_scores, options_.least_squares);
+  const Critic<float> as_function = [&](const Var<float>& x) { return critic.forward(x, ctx); };
+  if (options_.gradient_penalty > 0)
+    loss = add(loss, gradient_penalty(as_function, real, fake, tape_, penalty_rng_,
+                                      options_.gradient_penalty));
+  if (options_.r1 > 0) loss = add(loss, r1_penalty(as_function, real, tape_, options_.r1));
+  critic_adam_.step(tensors_of(critic_params_), parameter_gradients(loss, ctx, critic_params_));
+  last_.real_score = mean_of(real_scores);
+  last_.fake_score = mean_of(fake_scores);
+  return static_cast<double>(loss.item());
+}
+
+StepReport Trainer::step() {
+  for (int k = 0; k < options_.critic_steps; ++k) last_.critic_loss = critic_step();
+  tape_.clear();
+  Context<float> ctx(&tape_, true, &dropout_rng_);
+  const Var<float> fake =
+      pair_.generator->forward(Var<float>(draw_latent(options_.batch, latent_rng_)), ctx);
+  const Var<float> loss =
+      generator_loss(options_.objective, pair_.critic->forward(fake, ctx), options_.least_squares);
+  const double value = loss.item();
+  if (!std::isfinite(value))
+    raise(ErrorKind::kNumericalFailure, "step " + std::to_string(steps_ + 1) +
+                                            ": the generator loss is " + std::to_string(value));
+  generator_adam_.step(tensors_of(generator_params_),
+                       parameter_gradients(loss, ctx, generator_params_));
+  tape_.clear();
+  average_generator();
+  ++steps_;
+  last_.step = steps_;
+  last_.generator_loss = value;
+  return last_;
+}
+
+void Trainer::average_generator() {
+  const double beta = options_.average_decay;
+  for (size_t i = 0; i < average_.size(); ++i)
+    average_[i] = beta > 0 ? kernels::binary(
+                                 kernels::Binary::kAdd, kernels::scale(average_[i], beta),
+                                 kernels::scale(*generator_params_[i].tensor, 1 - beta), "average")
+                           : *generator_params_[i].tensor;
+}
+
+Tensor<float> Trainer::generate(const Tensor<float>& z) {
+  // Swap the averaged weights in for one evaluation step, then back.
+  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+  Tensor<float> out;
+  {
+    NoRecordScope sampling;
+    Context<float> eval(nullptr, false);
+    out = pair_.generator->forward(Var<float>(z), eval).value();
+  }
+  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+  return out;
+}
+
+void Trainer::save(Archive& archive) {
+  pair_.generator->save(archive, "generator");
+  pair_.critic->save(archive, "critic");
+  for (size_t i = 0; i < average_.size(); ++i)
+    archive.put("average." + generator_params_[i].name, average_[i]);
+  generator_adam_.save(archive, "optimiser.generator");
+  critic_adam_.save(archive, "optimiser.critic");
+  save_rng(archive, "stream.latent", latent_rng_);
+  save_rng(archive, "stream.dropout", dropout_rng_);
+  save_rng(archive, "stream.penalty", penalty_rng_);
+  data_->save(archive, "data");
+  archive.put_int("step", steps_);
+}
+
+void Trainer::load(const Archive& archive) {
+  pair_.generator->load(archive, "generator");
+  pair_.critic->load(archive, "critic");
+  for (size_t i = 0; i < average_.size(); ++i)
+    average_[i] = archive.tensor<float>("average." + generator_params_[i].name);
+  generator_adam_.load(archive, "optimiser.generator");
+  critic_adam_.load(archive, "optimiser.critic");
+  load_rng(archive, "stream.latent", latent_rng_);
+  load_rng(archive, "stream.dropout", dropout_rng_);
+  load_rng(archive, "stream.penalty", penalty_rng_);
+  data_->load(archive, "data");
+  steps_ = archive.integer("step");
+}
+
+}  // namespace spar

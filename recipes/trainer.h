@@ -1,0 +1,109 @@
+// Trainer: the adversarial training loop for one generator-critic pair.
+//
+// One step() is one generator step preceded by `critic_steps` critic steps (Goodfellow et al.
+// 2014, Algorithm 1, with k = critic_steps), each on a fresh batch of data and of latent
+// vectors. The two networks have separate Adam optimisers (as in Heusel et al. 2017's two
+// time-scale rule). After each generator step an exponential moving average of the generator's
+// weights is updated (Yazıcı et al. 2019); sampling uses the average.
+//
+// Randomness comes from streams derived from the run seed, one per purpose ("latent",
+// "dropout", "penalty"; data sources keep their own), so the same seed gives the same bits,
+// and save()/load() carry every stream's position: 100 steps, save, load, 100 more equals
+// 200 steps straight.
+// Thread safety: one thread at a time; kernels inside use the engine's threads.
+#pragma once
+
+#include <memory>
+
+#include "engine/optimizer.h"
+#include "recipes/architectures.h"
+#include "recipes/mixtures.h"
+#include "recipes/objectives.h"
+
+namespace spar {
+
+// Where training data comes from. next_batch advances a position that save/load carry.
+class DataSource {
+ public:
+  virtual ~DataSource() = default;
+  virtual Shape sample_shape() const = 0;
+  virtual Tensor<float> next_batch(int64_t n) = 0;
+  virtual void save(Archive& archive, const std::string& prefix) const = 0;
+  virtual void load(const Archive& archive, const std::string& prefix) = 0;
+};
+
+// Endless fresh samples of a built-in 2-D mixture (mixtures.h).
+class MixtureSource final : public DataSource {
+ public:
+  MixtureSource(Mixture mixture, uint64_t seed);
+  Shape sample_shape() const override { return {2}; }
+  Tensor<float> next_batch(int64_t n) override { return sample_mixture(mixture_, n, rng_); }
+  void save(Archive& archive, const std::string& prefix) const override;
+  void load(const Archive& archive, const std::string& prefix) override;
+  const Mixture& mixture() const { return mixture_; }
+
+ private:
+  Mixture mixture_;
+  Rng rng_;
+};
+
+struct TrainerOptions {
+  Objective objective = Objective::kNonSaturating;
+  LeastSquaresTargets least_squares;  // used by Objective::kLeastSquares only
+  double gradient_penalty = 0;        // λ of the gradient penalty (Gulrajani et al.: 10); 0 off
+  double r1 = 0;                      // γ of the R1 penalty (Mescheder et al.: 10 common); 0 off
+  int critic_steps = 1;               // critic steps per generator step (k)
+  int64_t batch = 64;                 // samples per batch, real and generated alike
+  AdamOptions generator_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};  // DCGAN's settings
+  AdamOptions critic_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};
+  double average_decay = 0.999;  // β of the generator's weight average; 0 off
+  uint64_t seed = 1;
+};
+
+// What one step measured: the losses, and the critic's mean raw score on real and generated
+// samples (for the minimax family, σ of a score is D's probability that the sample is real).
+struct StepReport {
+  int64_t step = 0;
+  double critic_loss = 0, generator_loss = 0;
+  double real_score = 0, fake_score = 0;
+};
+
+class Trainer {
+ public:
+  Trainer(GanPair pair, std::unique_ptr<DataSource> data, const TrainerOptions& options);
+
+  StepReport step();
+  int64_t steps_done() const { return steps_; }
+
+  // Generated samples from the averaged generator (evaluation step) for latent vectors z
+  // [n, latent]; draw_latent gives z ~ N(0, I).
+  Tensor<float> generate(const Tensor<float>& z);
+  Tensor<float> draw_latent(int64_t n, Rng& rng) const {
+    return rng.normal<float>({n, pair_.latent});
+  }
+
+  // Every tensor, optimiser moment, stream position and count needed to continue exactly.
+  void save(Archive& archive);
+  // Raises kCorruptCheckpoint naming what is missing or does not fit this architecture.
+  void load(const Archive& archive);
+
+  GanPair& pair() { return pair_; }
+
+ private:
+  double critic_step();
+  void average_generator();
+
+  GanPair pair_;
+  std::unique_ptr<DataSource> data_;
+  TrainerOptions options_;
+  std::vector<NamedTensor<float>> generator_params_, critic_params_;
+  std::vector<Tensor<float>>
+      average_;  // the generator's weight average, parallel to generator_params_
+  Adam<float> generator_adam_, critic_adam_;
+  Rng latent_rng_, dropout_rng_, penalty_rng_;
+  Tape<float> tape_;
+  int64_t steps_ = 0;
+  StepReport last_;
+};
+
+}  // namespace spar
