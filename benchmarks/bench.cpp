@@ -35,7 +35,8 @@ double seconds_per_call(const std::function<void()>& call, double min_seconds) {
 }
 
 std::pair<double, double> paired_seconds_per_call(const std::function<void()>& ours,
-                                                  const std::function<void()>& ceiling, double min_seconds) {
+                                                  const std::function<void()>& ceiling,
+                                                  double min_seconds) {
   ours();
   ceiling();
   double best_ours = 1e300, best_ceiling = 1e300;

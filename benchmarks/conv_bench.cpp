@@ -1,4 +1,4 @@
-// Convolution benchmarks: conv2d, its input gradient (conv2d_transpose) and its weight
+// Convolution benchmarks: convolution, its input gradient (transposed_convolution) and its weight
 // gradient at the shapes of a DCGAN discriminator and generator (batch 64, 4 × 4 kernels,
 // stride 2, padding 1), against a raw Eigen GEMM of the same FLOPs, plus the speed-up from
 // one thread to two.
@@ -24,7 +24,7 @@ namespace {
 // One layer in the convolution view: input [n, c, h, h] → output [n, o, h/2, h/2].
 struct ConvLayer {
   int64_t n, c, o, h;
-  bool generator;  // forward is conv2d_transpose (o channels at h/2 → c channels at h)
+  bool generator;  // forward is transposed_convolution (o channels at h/2 → c channels at h)
 };
 
 constexpr int64_t kKernel = 4;
@@ -56,13 +56,17 @@ void conv_layer(const BenchOptions& opt, const ConvLayer& l, std::vector<BenchRo
   Tensor<float> sink;
   std::function<void()> forward, input_gradient, weight_gradient;
   if (!l.generator) {
-    forward = [&] { sink = kernels::conv2d(x, w, g); };
-    input_gradient = [&] { sink = kernels::conv2d_transpose(y, w, g, l.h, l.h); };
-    weight_gradient = [&] { sink = kernels::conv2d_weight_gradient(x, y, g, kKernel, kKernel); };
+    forward = [&] { sink = kernels::convolution(x, w, g); };
+    input_gradient = [&] { sink = kernels::transposed_convolution(y, w, g, l.h, l.h); };
+    weight_gradient = [&] {
+      sink = kernels::convolution_weight_gradient(x, y, g, kKernel, kKernel);
+    };
   } else {  // z = y is the layer's input, x its output adjoint
-    forward = [&] { sink = kernels::conv2d_transpose(y, w, g, l.h, l.h); };
-    input_gradient = [&] { sink = kernels::conv2d(x, w, g); };
-    weight_gradient = [&] { sink = kernels::conv2d_weight_gradient(x, y, g, kKernel, kKernel); };
+    forward = [&] { sink = kernels::transposed_convolution(y, w, g, l.h, l.h); };
+    input_gradient = [&] { sink = kernels::convolution(x, w, g); };
+    weight_gradient = [&] {
+      sink = kernels::convolution_weight_gradient(x, y, g, kKernel, kKernel);
+    };
   }
   auto all_three = [&] {
     forward();
@@ -87,8 +91,8 @@ void conv_layer(const BenchOptions& opt, const ConvLayer& l, std::vector<BenchRo
     std::function<void()>* call;
   };
   const Part parts[] = {
-      {l.generator ? "forward (conv2d_transpose)" : "forward (conv2d)", &forward},
-      {l.generator ? "input gradient (conv2d)" : "input gradient (conv2d_transpose)",
+      {l.generator ? "forward (transposed_convolution)" : "forward (convolution)", &forward},
+      {l.generator ? "input gradient (convolution)" : "input gradient (transposed_convolution)",
        &input_gradient},
       {"weight gradient", &weight_gradient},
   };

@@ -6,7 +6,7 @@
 #include <cstdlib>
 #include <string>
 
-#include "recipes/trainer.h"
+#include "recipes/training.h"
 
 using namespace spar;
 
@@ -20,13 +20,13 @@ int main(int argc, char** argv) {
   for (int seed = 1; seed <= seeds; ++seed) {
     Rng init(seed, derive_stream(seed, "initialisation"));
     MlpPairOptions mlp;
-    TrainerOptions options;
+    TrainingOptions options;
     options.seed = seed;
     options.batch = 256;
     options.objective = objective;
     options.generator_optimiser.learning_rate = options.critic_optimiser.learning_rate = 1e-4;
-    Trainer trainer(make_mlp_pair(mlp, init), std::make_unique<MixtureSource>(mixture, seed),
-                    options);
+    TrainingRun trainer(make_mlp_pair(mlp, init), std::make_unique<MixtureSource>(mixture, seed),
+                        options);
     for (int s = 0; s < steps; ++s) trainer.step();
     Rng z(seed, derive_stream(seed, "evaluation"));
     const ModeCoverage c = mode_coverage(mixture, trainer.generate(trainer.draw_latent(2500, z)));

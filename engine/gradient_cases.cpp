@@ -129,7 +129,11 @@ std::vector<GradientCase> operation_gradient_cases() {
             return broadcast_to(x[0], {2, 3, 4});
           },
           {c.any({3, 1})});
-  c.check("sum_to", [](const Vs& x) { return sum_to(x[0], {3, 1}); }, {c.any({2, 3, 4})});
+  c.check("sum_into_shape",
+          [](const Vs& x) {
+            return sum_into_shape(x[0], {3, 1});
+          },
+          {c.any({2, 3, 4})});
   c.check("sum", [](const Vs& x) { return sum(x[0]); }, {c.any({3, 4})});
   c.check("sum axis 1", [](const Vs& x) { return sum(x[0], 1); }, {c.any({2, 3, 4})});
   c.check("sum axis 0 (size 1)", [](const Vs& x) { return sum(x[0], 0); }, {c.any({1, 5})});
@@ -140,10 +144,10 @@ std::vector<GradientCase> operation_gradient_cases() {
   c.check("log_sum_exp axis 1", [](const Vs& x) { return log_sum_exp(x[0], 1); }, {c.any({3, 5})});
   c.check("log_sum_exp axis 0", [](const Vs& x) { return log_sum_exp(x[0], 0); }, {c.any({4, 2})});
   c.check("softmax", [](const Vs& x) { return softmax(x[0], -1); }, {c.any({3, 4})});
-  c.check("softmax_cross_entropy", [](const Vs& x) { return softmax_cross_entropy(x[0], x[1], 1); },
+  c.check("class_cross_entropy", [](const Vs& x) { return class_cross_entropy(x[0], x[1], 1); },
           {c.any({3, 4}), c.positive({3, 4})});
-  c.check("binary_cross_entropy_with_logits",
-          [](const Vs& x) { return binary_cross_entropy_with_logits(x[0], x[1]); },
+  c.check("binary_cross_entropy_from_logits",
+          [](const Vs& x) { return binary_cross_entropy_from_logits(x[0], x[1]); },
           {c.any({3, 4}, -5, 5), c.any({3, 4}, 0, 1)});
   // Convolutions: non-square inputs and kernels, strides 1 to 3, padding 0 to 2, 1×1 kernels,
   // batch 1 and 2, one channel and several.
@@ -164,13 +168,13 @@ std::vector<GradientCase> operation_gradient_cases() {
     const int64_t ow = conv_output_extent(k.x[3], k.w[3], g.stride_w, g.pad_w, "case");
     const Shape y{k.x[0], k.w[0], oh, ow};
     const int64_t h = k.x[2], w = k.x[3], kh = k.w[2], kw = k.w[3];
-    c.check(std::string("conv2d ") + k.label, [g](const Vs& x) { return conv2d(x[0], x[1], g); },
-            {c.any(k.x), c.any(k.w)});
-    c.check(std::string("conv2d_transpose ") + k.label,
-            [g, h, w](const Vs& x) { return conv2d_transpose(x[0], x[1], g, h, w); },
+    c.check(std::string("convolution ") + k.label,
+            [g](const Vs& x) { return convolution(x[0], x[1], g); }, {c.any(k.x), c.any(k.w)});
+    c.check(std::string("transposed_convolution ") + k.label,
+            [g, h, w](const Vs& x) { return transposed_convolution(x[0], x[1], g, h, w); },
             {c.any(y), c.any(k.w)});
-    c.check(std::string("conv2d_weight_gradient ") + k.label,
-            [g, kh, kw](const Vs& x) { return conv2d_weight_gradient(x[0], x[1], g, kh, kw); },
+    c.check(std::string("convolution_weight_gradient ") + k.label,
+            [g, kh, kw](const Vs& x) { return convolution_weight_gradient(x[0], x[1], g, kh, kw); },
             {c.any(k.x), c.any(y)});
   }
   return c.take();

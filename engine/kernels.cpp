@@ -279,11 +279,11 @@ Tensor<T> broadcast_to(const Tensor<T>& x, const Shape& shape) {
 }
 
 template <class T>
-Tensor<T> sum_to(const Tensor<T>& x, const Shape& shape) {
+Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape) {
   if (x.shape() == shape) return x;
-  if (shape.rank() > x.rank() || broadcast_shapes(x.shape(), shape, "sum_to") != x.shape())
+  if (shape.rank() > x.rank() || broadcast_shapes(x.shape(), shape, "sum_into_shape") != x.shape())
     raise(ErrorKind::kBadShape,
-          "sum_to: cannot sum shape " + x.shape().str() + " to " + shape.str());
+          "sum_into_shape: cannot sum shape " + x.shape().str() + " to " + shape.str());
   Tensor<T> out = Tensor<T>::uninitialised(shape);
   const int64_t n_out = shape.numel();
   if (x.numel() == n_out) {  // only size-1 axes differ
@@ -532,7 +532,7 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
   template Tensor<T> leaky_relu_slope(const Tensor<T>&, double);                      \
   template Tensor<T> binary(Binary, const Tensor<T>&, const Tensor<T>&, const char*); \
   template Tensor<T> broadcast_to(const Tensor<T>&, const Shape&);                    \
-  template Tensor<T> sum_to(const Tensor<T>&, const Shape&);                          \
+  template Tensor<T> sum_into_shape(const Tensor<T>&, const Shape&);                  \
   template double sum_all(const Tensor<T>&);                                          \
   template Tensor<T> max_along(const Tensor<T>&, int, Tensor<T>*);                    \
   template Tensor<T> log_sum_exp_along(const Tensor<T>&, int);                        \

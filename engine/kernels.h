@@ -59,7 +59,7 @@ Tensor<T> broadcast_to(const Tensor<T>& x, const Shape& shape);
 // The adjoint of broadcast_to: sums x over the axes where `shape` has extent 1 (or lacks
 // leading axes). Accumulates in double; summation order depends only on the shapes.
 template <class T>
-Tensor<T> sum_to(const Tensor<T>& x, const Shape& shape);
+Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape);
 
 // Maximum along `axis`, keeping it with extent 1. When `first_max` is given it receives a
 // tensor shaped like x holding 1 at the first maximum of each lane and 0 elsewhere.
@@ -93,18 +93,18 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis);
 // y[n,o,i,j] = Σ_{c,p,q} w[o,c,p,q] · x[n, c, i·s_h + p − pad_h, j·s_w + q − pad_w]
 // (cross-correlation, zero outside x). x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW].
 template <class T>
-Tensor<T> conv2d(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g);
-// The adjoint of conv2d with respect to its input, which is also the transposed
-// convolution: z: [N,O,OH,OW], w: [O,C,KH,KW] → [N,C,out_h,out_w], where conv2d of an
+Tensor<T> convolution(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g);
+// The adjoint of convolution with respect to its input, which is also the transposed
+// convolution: z: [N,O,OH,OW], w: [O,C,KH,KW] → [N,C,out_h,out_w], where convolution of an
 // out_h × out_w input must give OH × OW (out_h − (s(OH−1) + KH − 2p) is the output padding).
 template <class T>
-Tensor<T> conv2d_transpose(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
-                           int64_t out_h, int64_t out_w);
-// The adjoint of conv2d with respect to its weight: x: [N,C,H,W], dy: [N,O,OH,OW] →
+Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
+                                 int64_t out_h, int64_t out_w);
+// The adjoint of convolution with respect to its weight: x: [N,C,H,W], dy: [N,O,OH,OW] →
 // [O,C,kernel_h,kernel_w] = Σ_n dy_n · columns(x_n)ᵀ, summed over n in a fixed order.
 template <class T>
-Tensor<T> conv2d_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy, const ConvGeometry& g,
-                                 int64_t kernel_h, int64_t kernel_w);
+Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
+                                      const ConvGeometry& g, int64_t kernel_h, int64_t kernel_w);
 
 // Σ x, accumulated in double over fixed chunks.
 template <class T>

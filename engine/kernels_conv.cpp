@@ -367,8 +367,8 @@ void for_each_group(const ConvShape& s, Body&& body) {
 }  // namespace
 
 template <class T>
-Tensor<T> conv2d(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g) {
-  const ConvShape s = conv_shape(x.shape(), w.shape(), g, "conv2d", [&] {
+Tensor<T> convolution(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g) {
+  const ConvShape s = conv_shape(x.shape(), w.shape(), g, "convolution", [&] {
     return "input " + dims(x.shape()) + ", weight " + dims(w.shape());
   });
   Tensor<T> y = Tensor<T>::uninitialised({s.n, s.o, s.oh, s.ow});
@@ -395,21 +395,21 @@ Tensor<T> conv2d(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g) 
 }
 
 template <class T>
-Tensor<T> conv2d_transpose(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
-                           int64_t out_h, int64_t out_w) {
+Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
+                                 int64_t out_h, int64_t out_w) {
   if (z.rank() != 4 || w.rank() != 4)
     raise(ErrorKind::kBadShape,
-          "conv2d_transpose: expects input [N, O, OH, OW] and weight [O, C, KH, KW], got " +
+          "transposed_convolution: expects input [N, O, OH, OW] and weight [O, C, KH, KW], got " +
               dims(z.shape()) + " and " + dims(w.shape()));
   if (z.dim(1) != w.dim(0))
-    raise(ErrorKind::kBadShape, "conv2d_transpose: input " + dims(z.shape()) + " has " +
+    raise(ErrorKind::kBadShape, "transposed_convolution: input " + dims(z.shape()) + " has " +
                                     std::to_string(z.dim(1)) + " channels but weight " +
                                     dims(w.shape()) + " expects " + std::to_string(w.dim(0)));
   const auto operands = [&] {
     return "input " + dims(z.shape()) + ", weight " + dims(w.shape()) + ", output size " +
            extents(out_h, out_w);
   };
-  check_geometry(g, w.dim(2), w.dim(3), "conv2d_transpose", operands);
+  check_geometry(g, w.dim(2), w.dim(3), "transposed_convolution", operands);
   // The outputs a convolution maps onto z's extents: o' = s(i' − 1) + a + k − 2p with output
   // padding 0 <= a < s (Dumoulin & Visin 2016), and at least 1.
   const int64_t lo_h = g.stride_h * (z.dim(2) - 1) + w.dim(2) - 2 * g.pad_h;
@@ -418,13 +418,13 @@ Tensor<T> conv2d_transpose(const Tensor<T>& z, const Tensor<T>& w, const ConvGeo
   if (z.dim(2) < 1 || z.dim(3) < 1 || out_h < std::max<int64_t>(1, lo_h) || out_h > hi_h ||
       out_w < std::max<int64_t>(1, lo_w) || out_w > hi_w)
     raise(ErrorKind::kBadShape,
-          "conv2d_transpose: output size " + extents(out_h, out_w) + " does not fit input " +
+          "transposed_convolution: output size " + extents(out_h, out_w) + " does not fit input " +
               dims(z.shape()) + " and weight " + dims(w.shape()) + " with " + geometry_text(g) +
               ": it must be " + std::to_string(std::max<int64_t>(1, lo_h)) + ".." +
               std::to_string(hi_h) + " high and " + std::to_string(std::max<int64_t>(1, lo_w)) +
               ".." + std::to_string(hi_w) + " wide (output padding below the stride)");
   const ConvShape s = conv_shape(Shape{z.dim(0), w.dim(1), out_h, out_w}, w.shape(), g,
-                                 "conv2d_transpose", operands);
+                                 "transposed_convolution", operands);
   Tensor<T> x = Tensor<T>::zeros({s.n, s.c, s.h, s.w});
   const int64_t p = s.positions();
   const Phases f(s);
@@ -449,26 +449,29 @@ Tensor<T> conv2d_transpose(const Tensor<T>& z, const Tensor<T>& w, const ConvGeo
 }
 
 template <class T>
-Tensor<T> conv2d_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy, const ConvGeometry& g,
-                                 int64_t kernel_h, int64_t kernel_w) {
+Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
+                                      const ConvGeometry& g, int64_t kernel_h, int64_t kernel_w) {
   if (x.rank() != 4 || dy.rank() != 4)
     raise(ErrorKind::kBadShape,
-          "conv2d_weight_gradient: expects input [N, C, H, W] and output adjoint [N, O, OH, OW], "
+          "convolution_weight_gradient: expects input [N, C, H, W] and output adjoint [N, O, OH, "
+          "OW], "
           "got " +
               dims(x.shape()) + " and " + dims(dy.shape()));
   const auto operands = [&] {
     return "input " + dims(x.shape()) + ", output adjoint " + dims(dy.shape());
   };
   if (kernel_h < 1 || kernel_w < 1)
-    raise(ErrorKind::kBadShape, "conv2d_weight_gradient: kernel " + extents(kernel_h, kernel_w) +
-                                    " is not positive (" + operands() + ")");
+    raise(ErrorKind::kBadShape, "convolution_weight_gradient: kernel " +
+                                    extents(kernel_h, kernel_w) + " is not positive (" +
+                                    operands() + ")");
   const Shape w_shape{dy.dim(1), x.dim(1), kernel_h, kernel_w};
-  const ConvShape s = conv_shape(x.shape(), w_shape, g, "conv2d_weight_gradient", operands);
+  const ConvShape s = conv_shape(x.shape(), w_shape, g, "convolution_weight_gradient", operands);
   if (dy.dim(0) != s.n || dy.dim(2) != s.oh || dy.dim(3) != s.ow)
-    raise(ErrorKind::kBadShape, "conv2d_weight_gradient: the output adjoint " + dims(dy.shape()) +
-                                    " does not match input " + dims(x.shape()) + " with a " +
-                                    extents(kernel_h, kernel_w) + " kernel, " + geometry_text(g) +
-                                    ", which give " + Shape{s.n, s.o, s.oh, s.ow}.str());
+    raise(ErrorKind::kBadShape, "convolution_weight_gradient: the output adjoint " +
+                                    dims(dy.shape()) + " does not match input " + dims(x.shape()) +
+                                    " with a " + extents(kernel_h, kernel_w) + " kernel, " +
+                                    geometry_text(g) + ", which give " +
+                                    Shape{s.n, s.o, s.oh, s.ow}.str());
   const int64_t p = s.positions();
   const int64_t size = group_size(s), groups = (s.n + size - 1) / size;
   const Phases f(s);
@@ -507,12 +510,12 @@ Tensor<T> conv2d_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy, const 
   return gw;
 }
 
-#define SPAR_INSTANTIATE(T)                                                                    \
-  template Tensor<T> conv2d(const Tensor<T>&, const Tensor<T>&, const ConvGeometry&);          \
-  template Tensor<T> conv2d_transpose(const Tensor<T>&, const Tensor<T>&, const ConvGeometry&, \
-                                      int64_t, int64_t);                                       \
-  template Tensor<T> conv2d_weight_gradient(const Tensor<T>&, const Tensor<T>&,                \
-                                            const ConvGeometry&, int64_t, int64_t);
+#define SPAR_INSTANTIATE(T)                                                                \
+  template Tensor<T> convolution(const Tensor<T>&, const Tensor<T>&, const ConvGeometry&); \
+  template Tensor<T> transposed_convolution(const Tensor<T>&, const Tensor<T>&,            \
+                                            const ConvGeometry&, int64_t, int64_t);        \
+  template Tensor<T> convolution_weight_gradient(const Tensor<T>&, const Tensor<T>&,       \
+                                                 const ConvGeometry&, int64_t, int64_t);
 SPAR_INSTANTIATE(float)
 SPAR_INSTANTIATE(double)
 #undef SPAR_INSTANTIATE

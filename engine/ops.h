@@ -80,21 +80,21 @@ Var<T> pad(const Var<T>& x, int axis, int64_t before, int64_t after);
 template <class T>
 Var<T> broadcast_to(const Var<T>& x, const Shape& shape);
 template <class T>
-Var<T> sum_to(const Var<T>& x, const Shape& shape);  // adjoint of broadcast_to
+Var<T> sum_into_shape(const Var<T>& x, const Shape& shape);  // adjoint of broadcast_to
 
 // ---- 2-D convolutions, NCHW (ops_conv.cpp; ConvGeometry and the formulas in kernels.h) ----
 // x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW] (cross-correlation with stride and zero padding).
 template <class T>
-Var<T> conv2d(const Var<T>& x, const Var<T>& w, const ConvGeometry& g);
-// The transposed convolution (conv2d's adjoint in its input): z: [N,O,OH,OW], w: [O,C,KH,KW]
+Var<T> convolution(const Var<T>& x, const Var<T>& w, const ConvGeometry& g);
+// The transposed convolution (convolution's adjoint in its input): z: [N,O,OH,OW], w: [O,C,KH,KW]
 // → [N,C,out_h,out_w].
 template <class T>
-Var<T> conv2d_transpose(const Var<T>& z, const Var<T>& w, const ConvGeometry& g, int64_t out_h,
-                        int64_t out_w);
-// conv2d's adjoint in its weight: x: [N,C,H,W], dy: [N,O,OH,OW] → [O,C,kernel_h,kernel_w].
+Var<T> transposed_convolution(const Var<T>& z, const Var<T>& w, const ConvGeometry& g,
+                              int64_t out_h, int64_t out_w);
+// convolution's adjoint in its weight: x: [N,C,H,W], dy: [N,O,OH,OW] → [O,C,kernel_h,kernel_w].
 template <class T>
-Var<T> conv2d_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
-                              int64_t kernel_h, int64_t kernel_w);
+Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
+                                   int64_t kernel_h, int64_t kernel_w);
 
 // ---- reductions (an axis may be negative: -1 is the last) ----
 template <class T>
@@ -114,10 +114,10 @@ Var<T> softmax(const Var<T>& x, int axis);
 // Per-lane −Σ targets·log softmax(logits) along `axis` (targets are probabilities, for
 // example one-hot rows); the axis is removed.
 template <class T>
-Var<T> softmax_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis);
+Var<T> class_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis);
 // Elementwise −[t·log σ(z) + (1−t)·log(1−σ(z))] = softplus(z) − t·z, stable for any z.
 template <class T>
-Var<T> binary_cross_entropy_with_logits(const Var<T>& logits, const Var<T>& targets);
+Var<T> binary_cross_entropy_from_logits(const Var<T>& logits, const Var<T>& targets);
 
 // ---- operators, for readable formulas ----
 template <class T>

@@ -13,7 +13,7 @@ namespace {
 using detail::input;
 
 // OpArgs::ints holds stride_h, stride_w, pad_h, pad_w and two extents (an output size for
-// conv2d_transpose, a kernel size for conv2d_weight_gradient).
+// transposed_convolution, a kernel size for convolution_weight_gradient).
 OpArgs conv_args(const ConvGeometry& g, int64_t a = 0, int64_t b = 0) {
   OpArgs args;
   args.ints = {g.stride_h, g.stride_w, g.pad_h, g.pad_w, a, b};
@@ -23,62 +23,63 @@ ConvGeometry geometry_of(const OpArgs& a) {
   return {a.ints[0], a.ints[1], a.ints[2], a.ints[3]};
 }
 
-// y = conv2d(x, w)
+// y = convolution(x, w)
 SPAR_ADJOINT(conv2d_adjoint) {
   const Var<T>& x = input(n, 0);
   const Var<T>& w = input(n, 1);
   const ConvGeometry geo = geometry_of(n.args);
-  if (needs[0]) gi[0] = conv2d_transpose(g, w, geo, x.shape()[2], x.shape()[3]);
-  if (needs[1]) gi[1] = conv2d_weight_gradient(x, g, geo, w.shape()[2], w.shape()[3]);
+  if (needs[0]) gi[0] = transposed_convolution(g, w, geo, x.shape()[2], x.shape()[3]);
+  if (needs[1]) gi[1] = convolution_weight_gradient(x, g, geo, w.shape()[2], w.shape()[3]);
 }
-// y = conv2d_transpose(z, w): ⟨g, y⟩ = ⟨conv2d(g, w), z⟩, and as a function of w it is the
-// weight gradient of a convolution whose input is g and whose output adjoint is z.
+// y = transposed_convolution(z, w): ⟨g, y⟩ = ⟨convolution(g, w), z⟩, and as a function of w it is
+// the weight gradient of a convolution whose input is g and whose output adjoint is z.
 SPAR_ADJOINT(conv2d_transpose_adjoint) {
   const Var<T>& z = input(n, 0);
   const Var<T>& w = input(n, 1);
   const ConvGeometry geo = geometry_of(n.args);
-  if (needs[0]) gi[0] = conv2d(g, w, geo);
-  if (needs[1]) gi[1] = conv2d_weight_gradient(g, z, geo, w.shape()[2], w.shape()[3]);
+  if (needs[0]) gi[0] = convolution(g, w, geo);
+  if (needs[1]) gi[1] = convolution_weight_gradient(g, z, geo, w.shape()[2], w.shape()[3]);
 }
-// W = conv2d_weight_gradient(x, dy): ⟨G, W⟩ = Σ_n ⟨dy_n, G·columns(x_n)⟩.
+// W = convolution_weight_gradient(x, dy): ⟨G, W⟩ = Σ_n ⟨dy_n, G·columns(x_n)⟩.
 SPAR_ADJOINT(conv2d_weight_gradient_adjoint) {
   const Var<T>& x = input(n, 0);
   const Var<T>& dy = input(n, 1);
   const ConvGeometry geo = geometry_of(n.args);
-  if (needs[0]) gi[0] = conv2d_transpose(dy, g, geo, x.shape()[2], x.shape()[3]);
-  if (needs[1]) gi[1] = conv2d(x, g, geo);
+  if (needs[0]) gi[0] = transposed_convolution(dy, g, geo, x.shape()[2], x.shape()[3]);
+  if (needs[1]) gi[1] = convolution(x, g, geo);
 }
 
 }  // namespace
 
 template <class T>
-Var<T> conv2d(const Var<T>& x, const Var<T>& w, const ConvGeometry& g) {
-  return record<T>("conv2d", conv2d_adjoint<T>, {x, w}, kernels::conv2d(x.value(), w.value(), g),
-                   conv_args(g));
+Var<T> convolution(const Var<T>& x, const Var<T>& w, const ConvGeometry& g) {
+  return record<T>("convolution", conv2d_adjoint<T>, {x, w},
+                   kernels::convolution(x.value(), w.value(), g), conv_args(g));
 }
 
 template <class T>
-Var<T> conv2d_transpose(const Var<T>& z, const Var<T>& w, const ConvGeometry& g, int64_t out_h,
-                        int64_t out_w) {
-  return record<T>("conv2d_transpose", conv2d_transpose_adjoint<T>, {z, w},
-                   kernels::conv2d_transpose(z.value(), w.value(), g, out_h, out_w),
+Var<T> transposed_convolution(const Var<T>& z, const Var<T>& w, const ConvGeometry& g,
+                              int64_t out_h, int64_t out_w) {
+  return record<T>("transposed_convolution", conv2d_transpose_adjoint<T>, {z, w},
+                   kernels::transposed_convolution(z.value(), w.value(), g, out_h, out_w),
                    conv_args(g, out_h, out_w));
 }
 
 template <class T>
-Var<T> conv2d_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
-                              int64_t kernel_h, int64_t kernel_w) {
-  return record<T>("conv2d_weight_gradient", conv2d_weight_gradient_adjoint<T>, {x, dy},
-                   kernels::conv2d_weight_gradient(x.value(), dy.value(), g, kernel_h, kernel_w),
-                   conv_args(g, kernel_h, kernel_w));
+Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
+                                   int64_t kernel_h, int64_t kernel_w) {
+  return record<T>(
+      "convolution_weight_gradient", conv2d_weight_gradient_adjoint<T>, {x, dy},
+      kernels::convolution_weight_gradient(x.value(), dy.value(), g, kernel_h, kernel_w),
+      conv_args(g, kernel_h, kernel_w));
 }
 
-#define SPAR_INSTANTIATE(T)                                                                    \
-  template Var<T> conv2d(const Var<T>&, const Var<T>&, const ConvGeometry&);                   \
-  template Var<T> conv2d_transpose(const Var<T>&, const Var<T>&, const ConvGeometry&, int64_t, \
-                                   int64_t);                                                   \
-  template Var<T> conv2d_weight_gradient(const Var<T>&, const Var<T>&, const ConvGeometry&,    \
-                                         int64_t, int64_t);
+#define SPAR_INSTANTIATE(T)                                                                      \
+  template Var<T> convolution(const Var<T>&, const Var<T>&, const ConvGeometry&);                \
+  template Var<T> transposed_convolution(const Var<T>&, const Var<T>&, const ConvGeometry&,      \
+                                         int64_t, int64_t);                                      \
+  template Var<T> convolution_weight_gradient(const Var<T>&, const Var<T>&, const ConvGeometry&, \
+                                              int64_t, int64_t);
 SPAR_INSTANTIATE(float)
 SPAR_INSTANTIATE(double)
 #undef SPAR_INSTANTIATE

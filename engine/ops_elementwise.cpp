@@ -14,23 +14,23 @@ using kernels::Binary;
 using kernels::Unary;
 
 // ---- a + b, a - b, a * b, a / b: the adjoint sums each contribution back to the operand's
-// shape (sum_to is the identity when no broadcasting happened).
+// shape (sum_into_shape is the identity when no broadcasting happened).
 SPAR_ADJOINT(add_adjoint) {
-  if (needs[0]) gi[0] = sum_to(g, input(n, 0).shape());
-  if (needs[1]) gi[1] = sum_to(g, input(n, 1).shape());
+  if (needs[0]) gi[0] = sum_into_shape(g, input(n, 0).shape());
+  if (needs[1]) gi[1] = sum_into_shape(g, input(n, 1).shape());
 }
 SPAR_ADJOINT(subtract_adjoint) {
-  if (needs[0]) gi[0] = sum_to(g, input(n, 0).shape());
-  if (needs[1]) gi[1] = sum_to(negate(g), input(n, 1).shape());
+  if (needs[0]) gi[0] = sum_into_shape(g, input(n, 0).shape());
+  if (needs[1]) gi[1] = sum_into_shape(negate(g), input(n, 1).shape());
 }
 SPAR_ADJOINT(multiply_adjoint) {
-  if (needs[0]) gi[0] = sum_to(multiply(g, input(n, 1)), input(n, 0).shape());
-  if (needs[1]) gi[1] = sum_to(multiply(g, input(n, 0)), input(n, 1).shape());
+  if (needs[0]) gi[0] = sum_into_shape(multiply(g, input(n, 1)), input(n, 0).shape());
+  if (needs[1]) gi[1] = sum_into_shape(multiply(g, input(n, 0)), input(n, 1).shape());
 }
 SPAR_ADJOINT(divide_adjoint) {
   const Var<T>& b = input(n, 1);
-  if (needs[0]) gi[0] = sum_to(divide(g, b), input(n, 0).shape());
-  if (needs[1]) gi[1] = sum_to(negate(multiply(g, divide(y, b))), b.shape());  // −g·a/b²
+  if (needs[0]) gi[0] = sum_into_shape(divide(g, b), input(n, 0).shape());
+  if (needs[1]) gi[1] = sum_into_shape(negate(multiply(g, divide(y, b))), b.shape());  // −g·a/b²
 }
 
 // ---- one-operand functions. x is the input, y the output (both recorded Vars).

@@ -25,13 +25,13 @@ Var<T> drop_axis_unless(const Var<T>& v, int axis, bool keep) {
 
 template <class T>
 Var<T> sum(const Var<T>& x) {
-  return sum_to(x, Shape{});
+  return sum_into_shape(x, Shape{});
 }
 
 template <class T>
 Var<T> sum(const Var<T>& x, int axis, bool keep_axis) {
   axis = x.shape().normalise_axis(axis, "sum");
-  return drop_axis_unless(sum_to(x, x.shape().with(axis, 1)), axis, keep_axis);
+  return drop_axis_unless(sum_into_shape(x, x.shape().with(axis, 1)), axis, keep_axis);
 }
 
 template <class T>
@@ -72,26 +72,26 @@ Var<T> softmax(const Var<T>& x, int axis) {
 }
 
 template <class T>
-Var<T> softmax_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis) {
+Var<T> class_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis) {
   // −Σ t·log softmax(z) = Σ t·(lse(z) − z), exact for any targets, stable through lse.
   return sum(multiply(targets, subtract(log_sum_exp(logits, axis, true), logits)), axis, false);
 }
 
 template <class T>
-Var<T> binary_cross_entropy_with_logits(const Var<T>& logits, const Var<T>& targets) {
+Var<T> binary_cross_entropy_from_logits(const Var<T>& logits, const Var<T>& targets) {
   return subtract(softplus(logits), multiply(targets, logits));
 }
 
-#define SPAR_INSTANTIATE(T)                                                 \
-  template Var<T> sum(const Var<T>&);                                       \
-  template Var<T> sum(const Var<T>&, int, bool);                            \
-  template Var<T> mean(const Var<T>&);                                      \
-  template Var<T> mean(const Var<T>&, int, bool);                           \
-  template Var<T> max(const Var<T>&, int, bool);                            \
-  template Var<T> log_sum_exp(const Var<T>&, int, bool);                    \
-  template Var<T> softmax(const Var<T>&, int);                              \
-  template Var<T> softmax_cross_entropy(const Var<T>&, const Var<T>&, int); \
-  template Var<T> binary_cross_entropy_with_logits(const Var<T>&, const Var<T>&);
+#define SPAR_INSTANTIATE(T)                                               \
+  template Var<T> sum(const Var<T>&);                                     \
+  template Var<T> sum(const Var<T>&, int, bool);                          \
+  template Var<T> mean(const Var<T>&);                                    \
+  template Var<T> mean(const Var<T>&, int, bool);                         \
+  template Var<T> max(const Var<T>&, int, bool);                          \
+  template Var<T> log_sum_exp(const Var<T>&, int, bool);                  \
+  template Var<T> softmax(const Var<T>&, int);                            \
+  template Var<T> class_cross_entropy(const Var<T>&, const Var<T>&, int); \
+  template Var<T> binary_cross_entropy_from_logits(const Var<T>&, const Var<T>&);
 SPAR_INSTANTIATE(float)
 SPAR_INSTANTIATE(double)
 #undef SPAR_INSTANTIATE

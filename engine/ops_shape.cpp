@@ -58,7 +58,7 @@ SPAR_ADJOINT(pad_adjoint) {
   gi[0] = slice(g, n.args.axis, n.args.begin, n.args.begin + input(n, 0).shape()[n.args.axis]);
 }
 SPAR_ADJOINT(broadcast_to_adjoint) {
-  gi[0] = sum_to(g, input(n, 0).shape());
+  gi[0] = sum_into_shape(g, input(n, 0).shape());
 }
 SPAR_ADJOINT(sum_to_adjoint) {
   gi[0] = broadcast_to(g, input(n, 0).shape());
@@ -135,9 +135,10 @@ Var<T> broadcast_to(const Var<T>& x, const Shape& shape) {
 }
 
 template <class T>
-Var<T> sum_to(const Var<T>& x, const Shape& shape) {
+Var<T> sum_into_shape(const Var<T>& x, const Shape& shape) {
   if (x.shape() == shape) return x;
-  return record<T>("sum_to", sum_to_adjoint<T>, {x}, kernels::sum_to(x.value(), shape));
+  return record<T>("sum_into_shape", sum_to_adjoint<T>, {x},
+                   kernels::sum_into_shape(x.value(), shape));
 }
 
 #define SPAR_INSTANTIATE(T)                                         \
@@ -149,7 +150,7 @@ Var<T> sum_to(const Var<T>& x, const Shape& shape) {
   template Var<T> slice(const Var<T>&, int, int64_t, int64_t);      \
   template Var<T> pad(const Var<T>&, int, int64_t, int64_t);        \
   template Var<T> broadcast_to(const Var<T>&, const Shape&);        \
-  template Var<T> sum_to(const Var<T>&, const Shape&);
+  template Var<T> sum_into_shape(const Var<T>&, const Shape&);
 SPAR_INSTANTIATE(float)
 SPAR_INSTANTIATE(double)
 #undef SPAR_INSTANTIATE

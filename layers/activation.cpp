@@ -7,30 +7,30 @@
 namespace spar {
 
 template <class T>
-Var<T> Activation<T>::forward(const Var<T>& x, Context<T>&) {
+Var<T> Nonlinearity<T>::run(const Var<T>& x, Context<T>&) {
   switch (kind_) {
-    case ActivationKind::kRelu:
+    case NonlinearityKind::kRelu:
       return relu(x);
-    case ActivationKind::kLeakyRelu:
+    case NonlinearityKind::kLeakyRelu:
       return leaky_relu(x, slope_);
-    case ActivationKind::kTanh:
+    case NonlinearityKind::kTanh:
       return tanh(x);
-    case ActivationKind::kSigmoid:
+    case NonlinearityKind::kSigmoid:
       return sigmoid(x);
   }
   return x;
 }
 
 template <class T>
-std::string Activation<T>::describe() const {
+std::string Nonlinearity<T>::describe() const {
   switch (kind_) {
-    case ActivationKind::kRelu:
+    case NonlinearityKind::kRelu:
       return "relu";
-    case ActivationKind::kLeakyRelu:
+    case NonlinearityKind::kLeakyRelu:
       return "leaky relu, slope " + std::to_string(slope_).substr(0, 4);
-    case ActivationKind::kTanh:
+    case NonlinearityKind::kTanh:
       return "tanh";
-    case ActivationKind::kSigmoid:
+    case NonlinearityKind::kSigmoid:
       return "sigmoid";
   }
   return "activation";
@@ -44,7 +44,7 @@ Dropout<T>::Dropout(double p) : p_(p) {
 }
 
 template <class T>
-Var<T> Dropout<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> Dropout<T>::run(const Var<T>& x, Context<T>& ctx) {
   if (!ctx.training() || p_ == 0) return x;
   Tensor<T> mask = ctx.rng("dropout").template uniform<T>(x.shape());
   T* m = mask.mutable_data();
@@ -59,7 +59,7 @@ std::string Dropout<T>::describe() const {
 }
 
 template <class T>
-Var<T> Reshape<T>::forward(const Var<T>& x, Context<T>&) {
+Var<T> PerSampleReshape<T>::run(const Var<T>& x, Context<T>&) {
   Shape s;
   s.push_back(x.shape()[0]);
   for (int64_t d : per_sample_) s.push_back(d);
@@ -70,15 +70,15 @@ Var<T> Reshape<T>::forward(const Var<T>& x, Context<T>&) {
 }
 
 template <class T>
-std::string Reshape<T>::describe() const {
+std::string PerSampleReshape<T>::describe() const {
   return "reshape to [N, " + per_sample_.str().substr(1);
 }
 
-template class Activation<float>;
-template class Activation<double>;
+template class Nonlinearity<float>;
+template class Nonlinearity<double>;
 template class Dropout<float>;
 template class Dropout<double>;
-template class Reshape<float>;
-template class Reshape<double>;
+template class PerSampleReshape<float>;
+template class PerSampleReshape<double>;
 
 }  // namespace spar

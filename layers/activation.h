@@ -6,18 +6,18 @@
 
 namespace spar {
 
-enum class ActivationKind { kRelu, kLeakyRelu, kTanh, kSigmoid };
+enum class NonlinearityKind { kRelu, kLeakyRelu, kTanh, kSigmoid };
 
 template <class T>
-class Activation final : public Layer<T> {
+class Nonlinearity final : public Layer<T> {
  public:
   // `slope` is used by kLeakyRelu only (DCGAN discriminators use 0.2).
-  explicit Activation(ActivationKind kind, double slope = 0.2) : kind_(kind), slope_(slope) {}
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  explicit Nonlinearity(NonlinearityKind kind, double slope = 0.2) : kind_(kind), slope_(slope) {}
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
-  ActivationKind kind_;
+  NonlinearityKind kind_;
   double slope_;
 };
 
@@ -28,7 +28,7 @@ template <class T>
 class Dropout final : public Layer<T> {
  public:
   explicit Dropout(double p);
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
@@ -37,21 +37,21 @@ class Dropout final : public Layer<T> {
 
 // Reshapes each sample: [N, ...] → [N, shape...] (same number of elements per sample).
 template <class T>
-class Reshape final : public Layer<T> {
+class PerSampleReshape final : public Layer<T> {
  public:
-  explicit Reshape(Shape per_sample) : per_sample_(per_sample) {}
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  explicit PerSampleReshape(Shape per_sample) : per_sample_(per_sample) {}
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
   Shape per_sample_;
 };
 
-extern template class Activation<float>;
-extern template class Activation<double>;
+extern template class Nonlinearity<float>;
+extern template class Nonlinearity<double>;
 extern template class Dropout<float>;
 extern template class Dropout<double>;
-extern template class Reshape<float>;
-extern template class Reshape<double>;
+extern template class PerSampleReshape<float>;
+extern template class PerSampleReshape<double>;
 
 }  // namespace spar

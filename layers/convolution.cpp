@@ -30,7 +30,7 @@ Var<T> add_channel_bias(const Var<T>& y, Tensor<T>& bias, int64_t channels, Cont
 }  // namespace
 
 template <class T>
-Conv2d<T>::Conv2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
+Convolution<T>::Convolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
   weight_ = initial_weight<T>({out, in, options.kernel_h, options.kernel_w}, in * area, out * area,
@@ -40,33 +40,35 @@ Conv2d<T>::Conv2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
 }
 
 template <class T>
-Var<T> Conv2d<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> Convolution<T>::run(const Var<T>& x, Context<T>& ctx) {
   require_channels(x.shape(), in_, describe());
   Var<T> w = ctx.use(weight_);
   if (normaliser_.enabled()) w = normaliser_.apply(w, ctx);
-  Var<T> y = conv2d(x, w, options_.geometry);
+  Var<T> y = convolution(x, w, options_.geometry);
   return options_.bias ? add_channel_bias(y, bias_, out_, ctx) : y;
 }
 
 template <class T>
-void Conv2d<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void Convolution<T>::collect_parameters(const std::string& prefix,
+                                        std::vector<NamedTensor<T>>& out) {
   out.push_back({join_name(prefix, "weight"), &weight_});
   if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
 }
 
 template <class T>
-void Conv2d<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  normaliser_.buffers(prefix, out);
+void Convolution<T>::collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  normaliser_.collect_state(prefix, out);
 }
 
 template <class T>
-std::string Conv2d<T>::describe() const {
-  return "conv2d " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
+std::string Convolution<T>::describe() const {
+  return "convolution " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
          geometry_text(options_) + (options_.spectral_norm ? ", spectral normalisation" : "");
 }
 
 template <class T>
-ConvTranspose2d<T>::ConvTranspose2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
+TransposedConvolution<T>::TransposedConvolution(int64_t in, int64_t out, const ConvOptions& options,
+                                                Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
   weight_ = initial_weight<T>({in, out, options.kernel_h, options.kernel_w}, in * area, out * area,
@@ -76,40 +78,42 @@ ConvTranspose2d<T>::ConvTranspose2d(int64_t in, int64_t out, const ConvOptions& 
 }
 
 template <class T>
-Var<T> ConvTranspose2d<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> TransposedConvolution<T>::run(const Var<T>& x, Context<T>& ctx) {
   require_channels(x.shape(), in_, describe());
   const ConvGeometry& g = options_.geometry;
   const int64_t out_h =
       conv_transpose_output_extent(x.shape()[2], options_.kernel_h, g.stride_h, g.pad_h,
-                                   options_.output_pad_h, "conv2d_transpose");
+                                   options_.output_pad_h, "transposed_convolution");
   const int64_t out_w =
       conv_transpose_output_extent(x.shape()[3], options_.kernel_w, g.stride_w, g.pad_w,
-                                   options_.output_pad_w, "conv2d_transpose");
+                                   options_.output_pad_w, "transposed_convolution");
   Var<T> w = ctx.use(weight_);
   if (normaliser_.enabled()) w = normaliser_.apply(w, ctx);
-  Var<T> y = conv2d_transpose(x, w, g, out_h, out_w);
+  Var<T> y = transposed_convolution(x, w, g, out_h, out_w);
   return options_.bias ? add_channel_bias(y, bias_, out_, ctx) : y;
 }
 
 template <class T>
-void ConvTranspose2d<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void TransposedConvolution<T>::collect_parameters(const std::string& prefix,
+                                                  std::vector<NamedTensor<T>>& out) {
   out.push_back({join_name(prefix, "weight"), &weight_});
   if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
 }
 
 template <class T>
-void ConvTranspose2d<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  normaliser_.buffers(prefix, out);
+void TransposedConvolution<T>::collect_state(const std::string& prefix,
+                                             std::vector<NamedTensor<T>>& out) {
+  normaliser_.collect_state(prefix, out);
 }
 
 template <class T>
-std::string ConvTranspose2d<T>::describe() const {
-  return "transposed conv2d " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
+std::string TransposedConvolution<T>::describe() const {
+  return "transposed convolution " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
          geometry_text(options_) + (options_.spectral_norm ? ", spectral normalisation" : "");
 }
 
 template <class T>
-Var<T> AveragePool2d<T>::forward(const Var<T>& x, Context<T>&) {
+Var<T> AveragePooling<T>::run(const Var<T>& x, Context<T>&) {
   const Shape& s = x.shape();
   const int64_t f = factor_;
   if (s.rank() != 4 || f < 1 || s[2] % f != 0 || s[3] % f != 0)
@@ -118,17 +122,17 @@ Var<T> AveragePool2d<T>::forward(const Var<T>& x, Context<T>&) {
                                     std::to_string(f));
   // [N, C, H/f, f, W/f, f], summed over the two window axes in one pass.
   const Var<T> windows = reshape(x, {s[0], s[1], s[2] / f, f, s[3] / f, f});
-  const Var<T> summed = sum_to(windows, {s[0], s[1], s[2] / f, 1, s[3] / f, 1});
+  const Var<T> summed = sum_into_shape(windows, {s[0], s[1], s[2] / f, 1, s[3] / f, 1});
   return scale(reshape(summed, {s[0], s[1], s[2] / f, s[3] / f}), 1.0 / static_cast<double>(f * f));
 }
 
 template <class T>
-std::string AveragePool2d<T>::describe() const {
+std::string AveragePooling<T>::describe() const {
   return "average pool " + std::to_string(factor_) + "×" + std::to_string(factor_);
 }
 
 template <class T>
-Var<T> Upsample2d<T>::forward(const Var<T>& x, Context<T>&) {
+Var<T> NearestUpsampling<T>::run(const Var<T>& x, Context<T>&) {
   const Shape& s = x.shape();
   const int64_t f = factor_;
   if (s.rank() != 4 || f < 1)
@@ -139,17 +143,17 @@ Var<T> Upsample2d<T>::forward(const Var<T>& x, Context<T>&) {
 }
 
 template <class T>
-std::string Upsample2d<T>::describe() const {
+std::string NearestUpsampling<T>::describe() const {
   return "nearest-neighbour upsample ×" + std::to_string(factor_);
 }
 
-template class Conv2d<float>;
-template class Conv2d<double>;
-template class ConvTranspose2d<float>;
-template class ConvTranspose2d<double>;
-template class AveragePool2d<float>;
-template class AveragePool2d<double>;
-template class Upsample2d<float>;
-template class Upsample2d<double>;
+template class Convolution<float>;
+template class Convolution<double>;
+template class TransposedConvolution<float>;
+template class TransposedConvolution<double>;
+template class AveragePooling<float>;
+template class AveragePooling<double>;
+template class NearestUpsampling<float>;
+template class NearestUpsampling<double>;
 
 }  // namespace spar

@@ -1,5 +1,5 @@
-// Convolution layers (NCHW): Conv2d, ConvTranspose2d, and the parameter-free resampling
-// layers AveragePool2d and Upsample2d.
+// Convolution layers (NCHW): Convolution, TransposedConvolution, and the parameter-free resampling
+// layers AveragePooling and NearestUpsampling.
 // Thread safety: as for layers (one thread at a time).
 #pragma once
 
@@ -21,12 +21,12 @@ struct ConvOptions {
 
 // [N, in, H, W] → [N, out, OH, OW]; weight [out, in, KH, KW], bias [out].
 template <class T>
-class Conv2d final : public Layer<T> {
+class Convolution final : public Layer<T> {
  public:
-  Conv2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  Convolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
  private:
@@ -40,12 +40,12 @@ class Conv2d final : public Layer<T> {
 // weight [in, out, KH, KW], bias [out]. With 4×4 kernels, stride 2, padding 1 it doubles
 // the spatial size, as in DCGAN generators.
 template <class T>
-class ConvTranspose2d final : public Layer<T> {
+class TransposedConvolution final : public Layer<T> {
  public:
-  ConvTranspose2d(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  TransposedConvolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng);
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
  private:
@@ -58,10 +58,10 @@ class ConvTranspose2d final : public Layer<T> {
 // Mean over non-overlapping factor × factor windows: [N, C, H, W] → [N, C, H/f, W/f]
 // (H and W must be multiples of f).
 template <class T>
-class AveragePool2d final : public Layer<T> {
+class AveragePooling final : public Layer<T> {
  public:
-  explicit AveragePool2d(int64_t factor) : factor_(factor) {}
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  explicit AveragePooling(int64_t factor) : factor_(factor) {}
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
@@ -70,23 +70,23 @@ class AveragePool2d final : public Layer<T> {
 
 // Nearest-neighbour upsampling: each pixel repeated factor × factor times.
 template <class T>
-class Upsample2d final : public Layer<T> {
+class NearestUpsampling final : public Layer<T> {
  public:
-  explicit Upsample2d(int64_t factor) : factor_(factor) {}
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  explicit NearestUpsampling(int64_t factor) : factor_(factor) {}
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
   int64_t factor_;
 };
 
-extern template class Conv2d<float>;
-extern template class Conv2d<double>;
-extern template class ConvTranspose2d<float>;
-extern template class ConvTranspose2d<double>;
-extern template class AveragePool2d<float>;
-extern template class AveragePool2d<double>;
-extern template class Upsample2d<float>;
-extern template class Upsample2d<double>;
+extern template class Convolution<float>;
+extern template class Convolution<double>;
+extern template class TransposedConvolution<float>;
+extern template class TransposedConvolution<double>;
+extern template class AveragePooling<float>;
+extern template class AveragePooling<double>;
+extern template class NearestUpsampling<float>;
+extern template class NearestUpsampling<double>;
 
 }  // namespace spar

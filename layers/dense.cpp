@@ -18,7 +18,7 @@ Dense<T>::Dense(int64_t in, int64_t out, const DenseOptions& options, Rng& rng)
 }
 
 template <class T>
-Var<T> Dense<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> Dense<T>::run(const Var<T>& x, Context<T>& ctx) {
   if (x.shape().rank() != 2 || x.shape()[1] != in_)
     raise(ErrorKind::kBadShape, "dense " + std::to_string(in_) + "→" + std::to_string(out_) +
                                     ": input has shape " + x.shape().str() + ", expected [N, " +
@@ -30,14 +30,14 @@ Var<T> Dense<T>::forward(const Var<T>& x, Context<T>& ctx) {
 }
 
 template <class T>
-void Dense<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void Dense<T>::collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
   out.push_back({join_name(prefix, "weight"), &weight_});
   if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
 }
 
 template <class T>
-void Dense<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  normaliser_.buffers(prefix, out);
+void Dense<T>::collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  normaliser_.collect_state(prefix, out);
 }
 
 template <class T>
@@ -48,11 +48,11 @@ std::string Dense<T>::describe() const {
 }
 
 template <class T>
-Embedding<T>::Embedding(int64_t classes, int64_t dim, Rng& rng)
+ClassEmbedding<T>::ClassEmbedding(int64_t classes, int64_t dim, Rng& rng)
     : classes_(classes), dim_(dim), table_(rng.normal<T>({classes, dim})) {}
 
 template <class T>
-Var<T> Embedding<T>::forward(const Var<T>& one_hot_rows, Context<T>& ctx) {
+Var<T> ClassEmbedding<T>::run(const Var<T>& one_hot_rows, Context<T>& ctx) {
   if (one_hot_rows.shape().rank() != 2 || one_hot_rows.shape()[1] != classes_)
     raise(ErrorKind::kBadShape, "embedding: input has shape " + one_hot_rows.shape().str() +
                                     ", expected one-hot rows [N, " + std::to_string(classes_) +
@@ -61,12 +61,13 @@ Var<T> Embedding<T>::forward(const Var<T>& one_hot_rows, Context<T>& ctx) {
 }
 
 template <class T>
-void Embedding<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void ClassEmbedding<T>::collect_parameters(const std::string& prefix,
+                                           std::vector<NamedTensor<T>>& out) {
   out.push_back({join_name(prefix, "table"), &table_});
 }
 
 template <class T>
-std::string Embedding<T>::describe() const {
+std::string ClassEmbedding<T>::describe() const {
   return "embedding " + std::to_string(classes_) + " classes → " + std::to_string(dim_);
 }
 
@@ -84,8 +85,8 @@ Tensor<T> one_hot(const std::vector<int64_t>& labels, int64_t classes) {
 
 template class Dense<float>;
 template class Dense<double>;
-template class Embedding<float>;
-template class Embedding<double>;
+template class ClassEmbedding<float>;
+template class ClassEmbedding<double>;
 template Tensor<float> one_hot(const std::vector<int64_t>&, int64_t);
 template Tensor<double> one_hot(const std::vector<int64_t>&, int64_t);
 

@@ -1,4 +1,4 @@
-// Dense (fully connected) and Embedding layers.
+// Dense (fully connected) and ClassEmbedding layers.
 // Thread safety: as for layers (one thread at a time).
 #pragma once
 
@@ -19,9 +19,9 @@ template <class T>
 class Dense final : public Layer<T> {
  public:
   Dense(int64_t in, int64_t out, const DenseOptions& options, Rng& rng);
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
  private:
@@ -35,11 +35,11 @@ class Dense final : public Layer<T> {
 // [N, classes] (see one_hot) and the output is [N, dim] = one_hot · E. Parameter "table",
 // initialised N(0, 1).
 template <class T>
-class Embedding final : public Layer<T> {
+class ClassEmbedding final : public Layer<T> {
  public:
-  Embedding(int64_t classes, int64_t dim, Rng& rng);
-  Var<T> forward(const Var<T>& one_hot_rows, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  ClassEmbedding(int64_t classes, int64_t dim, Rng& rng);
+  Var<T> run(const Var<T>& one_hot_rows, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
  private:
@@ -54,7 +54,7 @@ Tensor<T> one_hot(const std::vector<int64_t>& labels, int64_t classes);
 
 extern template class Dense<float>;
 extern template class Dense<double>;
-extern template class Embedding<float>;
-extern template class Embedding<double>;
+extern template class ClassEmbedding<float>;
+extern template class ClassEmbedding<double>;
 
 }  // namespace spar

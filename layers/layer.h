@@ -1,7 +1,7 @@
 // Layer<T>: a parametrised building block made only of engine operations, and Context<T>,
 // the per-step binding that turns a layer's parameter tensors into tape variables.
 //
-// A layer owns its parameters (trained) and buffers (saved but not trained: running
+// A layer owns its parameters (trained) and state tensors (saved but not trained: running
 // statistics, power-iteration vectors) as plain tensors, and reports them with stable,
 // hierarchical names ("critic.block2.conv.weight") that checkpoints use. It does not own a
 // tape: each forward pass receives a Context that says whether this is a training step and
@@ -61,18 +61,18 @@ template <class T>
 class Layer {
  public:
   virtual ~Layer() = default;
-  virtual Var<T> forward(const Var<T>& x, Context<T>& ctx) = 0;
+  virtual Var<T> run(const Var<T>& x, Context<T>& ctx) = 0;
   // Appends the trained parameters, named "<prefix>.<name>" (or "<name>" for an empty prefix).
-  virtual void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  virtual void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
     (void)prefix;
     (void)out;
   }
   // Appends saved state that is not trained (running statistics, power-iteration vectors).
-  virtual void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  virtual void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
     (void)prefix;
     (void)out;
   }
-  // One line for people, e.g. "conv2d 3→64, 4×4, stride 2, padding 1".
+  // One line for people, e.g. "convolution 3→64, 4×4, stride 2, padding 1".
   virtual std::string describe() const = 0;
 };
 

@@ -8,7 +8,8 @@
 namespace spar {
 
 template <class T>
-BatchNorm<T>::BatchNorm(int64_t channels, const BatchNormOptions& options)
+BatchNormalisation<T>::BatchNormalisation(int64_t channels,
+                                          const BatchNormalisationOptions& options)
     : channels_(channels),
       options_(options),
       scale_(Tensor<T>::full({channels}, T(1))),
@@ -17,7 +18,7 @@ BatchNorm<T>::BatchNorm(int64_t channels, const BatchNormOptions& options)
       running_variance_(Tensor<T>::full({channels}, T(1))) {}
 
 template <class T>
-Var<T> BatchNorm<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
   const Shape& s = x.shape();
   if ((s.rank() != 2 && s.rank() != 4) || s[1] != channels_)
     raise(ErrorKind::kBadShape, describe() + ": input has shape " + s.str() + ", expected [N, " +
@@ -30,8 +31,8 @@ Var<T> BatchNorm<T>::forward(const Var<T>& x, Context<T>& ctx) {
     if (m < 2)
       raise(ErrorKind::kBadShape,
             describe() + ": a training batch needs two or more values per channel, got " + s.str());
-    mean = scale(sum_to(x, stat), 1.0 / static_cast<double>(m));
-    variance = scale(sum_to(square(subtract(x, mean)), stat), 1.0 / static_cast<double>(m));
+    mean = scale(sum_into_shape(x, stat), 1.0 / static_cast<double>(m));
+    variance = scale(sum_into_shape(square(subtract(x, mean)), stat), 1.0 / static_cast<double>(m));
     const double r = options_.running_rate,
                  unbiased = static_cast<double>(m) / static_cast<double>(m - 1);
     const Tensor<T> batch_mean = mean.value().reshape({channels_}),
@@ -51,25 +52,27 @@ Var<T> BatchNorm<T>::forward(const Var<T>& x, Context<T>& ctx) {
 }
 
 template <class T>
-void BatchNorm<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void BatchNormalisation<T>::collect_parameters(const std::string& prefix,
+                                               std::vector<NamedTensor<T>>& out) {
   if (!options_.affine) return;
   out.push_back({join_name(prefix, "scale"), &scale_});
   out.push_back({join_name(prefix, "shift"), &shift_});
 }
 
 template <class T>
-void BatchNorm<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void BatchNormalisation<T>::collect_state(const std::string& prefix,
+                                          std::vector<NamedTensor<T>>& out) {
   out.push_back({join_name(prefix, "running_mean"), &running_mean_});
   out.push_back({join_name(prefix, "running_variance"), &running_variance_});
 }
 
 template <class T>
-std::string BatchNorm<T>::describe() const {
+std::string BatchNormalisation<T>::describe() const {
   return "batch normalisation, " + std::to_string(channels_) + " channels";
 }
 
 template <class T>
-Var<T> MinibatchStddev<T>::forward(const Var<T>& x, Context<T>&) {
+Var<T> MinibatchStddev<T>::run(const Var<T>& x, Context<T>&) {
   const Shape& s = x.shape();
   if ((s.rank() != 2 && s.rank() != 4) || s[0] < 2)
     raise(ErrorKind::kBadShape, describe() + ": input has shape " + s.str() +
@@ -86,8 +89,8 @@ std::string MinibatchStddev<T>::describe() const {
   return "minibatch standard deviation feature";
 }
 
-template class BatchNorm<float>;
-template class BatchNorm<double>;
+template class BatchNormalisation<float>;
+template class BatchNormalisation<double>;
 template class MinibatchStddev<float>;
 template class MinibatchStddev<double>;
 

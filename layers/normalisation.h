@@ -7,7 +7,7 @@
 
 namespace spar {
 
-struct BatchNormOptions {
+struct BatchNormalisationOptions {
   double epsilon = 1e-5;      // added to the variance before the square root. Default 1e-5.
   double running_rate = 0.1;  // weight of the newest batch in the running statistics:
                               // running ← (1 − r)·running + r·batch. Default 0.1.
@@ -18,20 +18,20 @@ struct BatchNormOptions {
 // x̂ = (x − μ_B) / √(σ²_B + ε), y = γ·x̂ + β (Ioffe & Szegedy 2015, Algorithm 1), with μ_B and
 // σ²_B the batch mean and (biased) variance. Training steps also update the running mean and
 // the running unbiased variance m/(m−1)·σ²_B (Algorithm 2); evaluation steps normalise with
-// those. Accepts [N, C] and [N, C, H, W]. Parameters "scale", "shift"; buffers
+// those. Accepts [N, C] and [N, C, H, W]. Parameters "scale", "shift"; state
 // "running_mean", "running_variance".
 template <class T>
-class BatchNorm final : public Layer<T> {
+class BatchNormalisation final : public Layer<T> {
  public:
-  BatchNorm(int64_t channels, const BatchNormOptions& options = {});
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  BatchNormalisation(int64_t channels, const BatchNormalisationOptions& options = {});
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
  private:
   int64_t channels_;
-  BatchNormOptions options_;
+  BatchNormalisationOptions options_;
   Tensor<T> scale_, shift_, running_mean_, running_variance_;
 };
 
@@ -44,15 +44,15 @@ template <class T>
 class MinibatchStddev final : public Layer<T> {
  public:
   explicit MinibatchStddev(double epsilon = 1e-8) : epsilon_(epsilon) {}
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
   std::string describe() const override;
 
  private:
   double epsilon_;
 };
 
-extern template class BatchNorm<float>;
-extern template class BatchNorm<double>;
+extern template class BatchNormalisation<float>;
+extern template class BatchNormalisation<double>;
 extern template class MinibatchStddev<float>;
 extern template class MinibatchStddev<double>;
 

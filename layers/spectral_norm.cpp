@@ -38,7 +38,8 @@ Var<T> SpectralNormaliser<T>::apply(const Var<T>& w, Context<T>& ctx) {
 }
 
 template <class T>
-void SpectralNormaliser<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+void SpectralNormaliser<T>::collect_state(const std::string& prefix,
+                                          std::vector<NamedTensor<T>>& out) {
   if (!enabled()) return;
   out.push_back({join_name(prefix, "spectral_u"), &u_});
   out.push_back({join_name(prefix, "spectral_v"), &v_});

@@ -26,7 +26,7 @@ class SpectralNormaliser {
   Var<T> apply(const Var<T>& w, Context<T>& ctx);
   // σ from the latest apply() (for monitoring); 0 before the first.
   double last_sigma() const { return last_sigma_; }
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out);
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out);
 
  private:
   int64_t rows_ = 0, cols_ = 0;

@@ -8,7 +8,7 @@
 
 namespace spar {
 namespace {
-using S = Sequential<float>;
+using S = LayerStack<float>;
 std::string numbered(const char* base, int i) {
   return base + std::to_string(i);
 }
@@ -22,14 +22,15 @@ GanPair make_mlp_pair(const MlpPairOptions& o, Rng& rng) {
   int64_t in = o.latent;
   for (int i = 1; i <= o.depth; ++i) {
     pair.generator->emplace<Dense<float>>(numbered("dense", i), in, o.width, plain, rng);
-    pair.generator->emplace<Activation<float>>(numbered("act", i), ActivationKind::kRelu);
+    pair.generator->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kRelu);
     in = o.width;
   }
   pair.generator->emplace<Dense<float>>("out", in, o.data, plain, rng);
   in = o.data;
   for (int i = 1; i <= o.depth; ++i) {
     pair.critic->emplace<Dense<float>>(numbered("dense", i), in, o.width, critic_dense, rng);
-    pair.critic->emplace<Activation<float>>(numbered("act", i), ActivationKind::kLeakyRelu, 0.2);
+    pair.critic->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kLeakyRelu,
+                                              0.2);
     in = o.width;
   }
   pair.critic->emplace<Dense<float>>("out", in, 1, critic_dense, rng);
@@ -60,23 +61,23 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
 
   S& g = *pair.generator;
   g.emplace<Dense<float>>("project", o.latent, top * start * start, DenseOptions{false}, rng);
-  g.emplace<Reshape<float>>("map", Shape{top, start, start});
-  g.emplace<BatchNorm<float>>("norm0", top);
-  g.emplace<Activation<float>>("act0", ActivationKind::kRelu);
+  g.emplace<PerSampleReshape<float>>("map", Shape{top, start, start});
+  g.emplace<BatchNormalisation<float>>("norm0", top);
+  g.emplace<Nonlinearity<float>>("act0", NonlinearityKind::kRelu);
   int64_t c = top;
   for (int i = 1; i <= doublings; ++i) {
     const bool last = i == doublings;
     ConvOptions layer = up;
     layer.bias = last;
     const int64_t next = last ? o.channels : c / 2;
-    g.emplace<ConvTranspose2d<float>>(numbered("up", i), c, next, layer, rng);
+    g.emplace<TransposedConvolution<float>>(numbered("up", i), c, next, layer, rng);
     if (!last) {
-      g.emplace<BatchNorm<float>>(numbered("norm", i), next);
-      g.emplace<Activation<float>>(numbered("act", i), ActivationKind::kRelu);
+      g.emplace<BatchNormalisation<float>>(numbered("norm", i), next);
+      g.emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kRelu);
     }
     c = next;
   }
-  g.emplace<Activation<float>>("out", ActivationKind::kTanh);
+  g.emplace<Nonlinearity<float>>("out", NonlinearityKind::kTanh);
 
   S& d = *pair.critic;
   ConvOptions down = up;
@@ -87,13 +88,13 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
     const int64_t next = o.width << (i - 1);
     ConvOptions layer = down;
     layer.bias = i == 1 || o.spectral_norm;  // no bias before batch normalisation
-    d.emplace<Conv2d<float>>(numbered("down", i), c, next, layer, rng);
-    if (i > 1 && !o.spectral_norm) d.emplace<BatchNorm<float>>(numbered("norm", i), next);
-    d.emplace<Activation<float>>(numbered("act", i), ActivationKind::kLeakyRelu, 0.2);
+    d.emplace<Convolution<float>>(numbered("down", i), c, next, layer, rng);
+    if (i > 1 && !o.spectral_norm) d.emplace<BatchNormalisation<float>>(numbered("norm", i), next);
+    d.emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kLeakyRelu, 0.2);
     c = next;
     size /= 2;
   }
-  d.emplace<Reshape<float>>("flat", Shape{c * size * size});
+  d.emplace<PerSampleReshape<float>>("flat", Shape{c * size * size});
   DenseOptions score;
   score.spectral_norm = o.spectral_norm;
   d.emplace<Dense<float>>("score", c * size * size, 1, score, rng);

@@ -14,13 +14,13 @@
 
 #include <memory>
 
-#include "layers/sequential.h"
+#include "layers/layer_stack.h"
 
 namespace spar {
 
 struct GanPair {
-  std::unique_ptr<Sequential<float>> generator;
-  std::unique_ptr<Sequential<float>> critic;
+  std::unique_ptr<LayerStack<float>> generator;
+  std::unique_ptr<LayerStack<float>> critic;
   int64_t latent = 0;
   Shape sample_shape;  // one generated sample, e.g. [2] or [1, 28, 28]
 };

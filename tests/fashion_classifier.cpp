@@ -29,8 +29,8 @@
 #include "layers/activation.h"
 #include "layers/convolution.h"
 #include "layers/dense.h"
+#include "layers/layer_stack.h"
 #include "layers/normalisation.h"
-#include "layers/sequential.h"
 #include "recipes/idx.h"
 
 namespace {
@@ -176,7 +176,7 @@ Tensor<float> gather(const Split& split, const std::vector<int64_t>& order, int6
   return batch;
 }
 
-void build(spar::Sequential<float>& model, const RunOptions& o, spar::Rng& rng) {
+void build(spar::LayerStack<float>& model, const RunOptions& o, spar::Rng& rng) {
   spar::ConvOptions conv;
   conv.kernel_h = conv.kernel_w = 3;
   conv.geometry.pad_h = conv.geometry.pad_w = 1;
@@ -184,24 +184,24 @@ void build(spar::Sequential<float>& model, const RunOptions& o, spar::Rng& rng) 
   conv.bias = !o.batch_norm;  // batch normalisation's shift takes the bias's place
   spar::DenseOptions dense;
   dense.init = spar::Init::kHeNormal;
-  using spar::ActivationKind;
+  using spar::NonlinearityKind;
 
-  model.emplace<spar::Conv2d<float>>("conv1", 1, 32, conv, rng);
-  if (o.batch_norm) model.emplace<spar::BatchNorm<float>>("norm1", 32);
-  model.emplace<spar::Activation<float>>("relu1", ActivationKind::kRelu);
-  model.emplace<spar::AveragePool2d<float>>("pool1", 2);
-  model.emplace<spar::Conv2d<float>>("conv2", 32, 64, conv, rng);
-  if (o.batch_norm) model.emplace<spar::BatchNorm<float>>("norm2", 64);
-  model.emplace<spar::Activation<float>>("relu2", ActivationKind::kRelu);
-  model.emplace<spar::AveragePool2d<float>>("pool2", 2);
-  model.emplace<spar::Reshape<float>>("flatten", spar::Shape{64 * 7 * 7});
+  model.emplace<spar::Convolution<float>>("conv1", 1, 32, conv, rng);
+  if (o.batch_norm) model.emplace<spar::BatchNormalisation<float>>("norm1", 32);
+  model.emplace<spar::Nonlinearity<float>>("relu1", NonlinearityKind::kRelu);
+  model.emplace<spar::AveragePooling<float>>("pool1", 2);
+  model.emplace<spar::Convolution<float>>("conv2", 32, 64, conv, rng);
+  if (o.batch_norm) model.emplace<spar::BatchNormalisation<float>>("norm2", 64);
+  model.emplace<spar::Nonlinearity<float>>("relu2", NonlinearityKind::kRelu);
+  model.emplace<spar::AveragePooling<float>>("pool2", 2);
+  model.emplace<spar::PerSampleReshape<float>>("flatten", spar::Shape{64 * 7 * 7});
   model.emplace<spar::Dense<float>>("dense1", 64 * 7 * 7, 128, dense, rng);
-  model.emplace<spar::Activation<float>>("relu3", ActivationKind::kRelu);
+  model.emplace<spar::Nonlinearity<float>>("relu3", NonlinearityKind::kRelu);
   model.emplace<spar::Dense<float>>("dense2", 128, kClasses, dense, rng);
 }
 
 // Correctly classified images of `split`, with a no-record evaluation step.
-int64_t count_correct(spar::Sequential<float>& model, const Split& split) {
+int64_t count_correct(spar::LayerStack<float>& model, const Split& split) {
   spar::NoRecordScope no_record;
   const int64_t count = static_cast<int64_t>(split.labels.size());
   std::vector<int64_t> order(static_cast<size_t>(count));
@@ -211,8 +211,7 @@ int64_t count_correct(spar::Sequential<float>& model, const Split& split) {
   for (int64_t first = 0; first < count; first += kEvaluationBatch) {
     const int64_t n = std::min(kEvaluationBatch, count - first);
     spar::Context<float> ctx(nullptr, /*training=*/false);
-    const Var<float> logits =
-        model.forward(Var<float>(gather(split, order, first, n, labels)), ctx);
+    const Var<float> logits = model.run(Var<float>(gather(split, order, first, n, labels)), ctx);
     const float* z = logits.value().data();
     for (int64_t i = 0; i < n; ++i) {
       const float* row = z + i * kClasses;
@@ -238,9 +237,9 @@ int run(const RunOptions& o) {
 
   spar::Rng init_rng(o.seed, spar::derive_stream(o.seed, "initialisation"));
   spar::Rng order_rng(o.seed, spar::derive_stream(o.seed, "data order"));
-  spar::Sequential<float> model;
+  spar::LayerStack<float> model;
   build(model, o, init_rng);
-  std::vector<spar::NamedTensor<float>> params = model.named_parameters();
+  std::vector<spar::NamedTensor<float>> params = model.all_parameters();
   std::vector<Tensor<float>*> targets;
   int64_t weights = 0;
   for (const auto& p : params) {
@@ -275,9 +274,9 @@ int run(const RunOptions& o) {
       const int64_t n = std::min(o.batch, o.train - first);
       const Tensor<float> x = gather(train, order, first, n, labels);
       spar::Context<float> ctx(&tape, /*training=*/true);
-      const Var<float> logits = model.forward(Var<float>(x), ctx);
+      const Var<float> logits = model.run(Var<float>(x), ctx);
       const Var<float> target(spar::one_hot<float>(labels, kClasses));
-      const Var<float> loss = spar::mean(spar::softmax_cross_entropy(logits, target, 1));
+      const Var<float> loss = spar::mean(spar::class_cross_entropy(logits, target, 1));
       const float value = loss.item();
       if (!std::isfinite(value)) {
         std::fprintf(stderr, "spar_fashion_classifier: loss is %g at epoch %d, step %lld\n",

@@ -22,12 +22,12 @@ int main() {
   Rng rng(31, 1);
   // Batch normalisation: one training step (batch statistics, running statistics updated
   // from their initial 0 and 1), then an evaluation step on other data.
-  BatchNormOptions options;
+  BatchNormalisationOptions options;
   options.epsilon = 1e-5;
   options.running_rate = 0.1;
-  BatchNorm<double> norm(3, options);
+  BatchNormalisation<double> norm(3, options);
   std::vector<NamedTensor<double>> params;
-  norm.parameters("", params);
+  norm.collect_parameters("", params);
   *params[0].tensor = rng.uniform<double>({3}, 0.5, 2.0);   // scale γ
   *params[1].tensor = rng.uniform<double>({3}, -1.0, 1.0);  // shift β
   const Tensor<double> x = rng.normal<double>({8, 3, 4, 5}, 1.5, 2.0);
@@ -36,13 +36,13 @@ int main() {
   print("bn_x", x);
   print("bn_scale", *params[0].tensor);
   print("bn_shift", *params[1].tensor);
-  print("bn_train_y", norm.forward(Var<double>(x), train).value());
+  print("bn_train_y", norm.run(Var<double>(x), train).value());
   std::vector<NamedTensor<double>> buffers;
-  norm.buffers("", buffers);
+  norm.collect_state("", buffers);
   print("bn_running_mean", *buffers[0].tensor);
   print("bn_running_variance", *buffers[1].tensor);
   print("bn_eval_x", x_eval);
-  print("bn_eval_y", norm.forward(Var<double>(x_eval), eval).value());
+  print("bn_eval_y", norm.run(Var<double>(x_eval), eval).value());
 
   // Spectral normalisation of a convolution weight [5, 3, 3, 3] viewed as 5 × 27: the σ after
   // the first training step and after 60, and the normalised weight.

@@ -14,7 +14,7 @@
 #include "engine/optimizer.h"
 #include "layers/activation.h"
 #include "layers/dense.h"
-#include "layers/sequential.h"
+#include "layers/layer_stack.h"
 #include "recipes/objectives.h"
 
 using namespace spar;
@@ -23,15 +23,15 @@ int main(int argc, char** argv) {
   const int steps = argc > 1 ? std::atoi(argv[1]) : 10000;
   const int64_t batch = 512;
   Rng init(1, derive_stream(1, "initialisation")), data(1, derive_stream(1, "data"));
-  Sequential<double> d;
+  LayerStack<double> d;
   DenseOptions dense;
   dense.init = Init::kGlorotUniform;
   d.emplace<Dense<double>>("hidden1", 1, 32, dense, init);
-  d.emplace<Activation<double>>("act1", ActivationKind::kTanh);
+  d.emplace<Nonlinearity<double>>("act1", NonlinearityKind::kTanh);
   d.emplace<Dense<double>>("hidden2", 32, 32, dense, init);
-  d.emplace<Activation<double>>("act2", ActivationKind::kTanh);
+  d.emplace<Nonlinearity<double>>("act2", NonlinearityKind::kTanh);
   d.emplace<Dense<double>>("out", 32, 1, dense, init);
-  auto params = d.named_parameters("d");
+  auto params = d.all_parameters("d");
   AdamOptions adam_options;
   adam_options.learning_rate = 2e-3;
   Adam<double> adam(adam_options);
@@ -44,7 +44,7 @@ int main(int argc, char** argv) {
     const Var<double> real(data.normal<double>({batch, 1}, 0.0, 1.0));
     const Var<double> fake(data.normal<double>({batch, 1}, 1.5, 0.6));
     const Var<double> loss =
-        discriminator_loss(Objective::kMinimax, d.forward(real, ctx), d.forward(fake, ctx));
+        discriminator_loss(Objective::kMinimax, d.run(real, ctx), d.run(fake, ctx));
     std::vector<Tensor<double>> grads = parameter_gradients(loss, ctx, params);
     std::vector<Tensor<double>*> tensors;
     for (auto& p : params) tensors.push_back(p.tensor);
@@ -56,16 +56,15 @@ int main(int argc, char** argv) {
   Tensor<double> grid = Tensor<double>::uninitialised({points, 1});
   for (int64_t i = 0; i < points; ++i)
     grid.mutable_data()[i] = -3.0 + 6.0 * static_cast<double>(i) / (points - 1);
-  const Tensor<double> dx = sigmoid(d.forward(Var<double>(grid), eval)).value();
+  const Tensor<double> dx = sigmoid(d.run(Var<double>(grid), eval)).value();
   for (int64_t i = 0; i < points; ++i)
     std::printf("grid %.6f %.10f\n", grid.data()[i], dx.data()[i]);
   // V = E_data[log D] + E_g[log(1 − D)], with log D = log σ(logit), log(1 − D) = log σ(−logit).
   const int64_t n = 1000000;
   const Tensor<double> a =
-      log_sigmoid(d.forward(Var<double>(data.normal<double>({n, 1}, 0.0, 1.0)), eval)).value();
+      log_sigmoid(d.run(Var<double>(data.normal<double>({n, 1}, 0.0, 1.0)), eval)).value();
   const Tensor<double> b =
-      log_sigmoid(negate(d.forward(Var<double>(data.normal<double>({n, 1}, 1.5, 0.6)), eval)))
-          .value();
+      log_sigmoid(negate(d.run(Var<double>(data.normal<double>({n, 1}, 1.5, 0.6)), eval))).value();
   double ma = 0, mb = 0, va = 0, vb = 0;
   for (int64_t i = 0; i < n; ++i) ma += a.data()[i], mb += b.data()[i];
   ma /= n, mb /= n;

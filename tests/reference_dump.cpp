@@ -86,10 +86,11 @@ const CaseInfo kCases[] = {
     {"max", 1, 2, 2, "AXIS KEEP(0|1)"},
     {"log_sum_exp", 1, 2, 2, "AXIS KEEP(0|1)"},
     {"softmax", 1, 1, 1, "AXIS"},
-    {"softmax_cross_entropy", 2, 1, 1, "AXIS (operands: logits, targets)"},
-    {"binary_cross_entropy_with_logits", 2, 0, 0, "(operands: logits, targets)"},
-    {"conv2d", 2, 4, 4, "STRIDE_H STRIDE_W PAD_H PAD_W (operands: x [N,C,H,W], w [O,C,KH,KW])"},
-    {"conv2d_transpose", 2, 6, 6,
+    {"class_cross_entropy", 2, 1, 1, "AXIS (operands: logits, targets)"},
+    {"binary_cross_entropy_from_logits", 2, 0, 0, "(operands: logits, targets)"},
+    {"convolution", 2, 4, 4,
+     "STRIDE_H STRIDE_W PAD_H PAD_W (operands: x [N,C,H,W], w [O,C,KH,KW])"},
+    {"transposed_convolution", 2, 6, 6,
      "STRIDE_H STRIDE_W PAD_H PAD_W OUT_H OUT_W (operands: z [N,O,OH,OW], w [O,C,KH,KW])"},
 };
 
@@ -141,12 +142,13 @@ Var<T> evaluate(const std::string& c, const std::vector<Var<T>>& x,
   if (c == "max") return spar::max(x[0], static_cast<int>(p[0]), flag(p[1]));
   if (c == "log_sum_exp") return spar::log_sum_exp(x[0], static_cast<int>(p[0]), flag(p[1]));
   if (c == "softmax") return spar::softmax(x[0], static_cast<int>(p[0]));
-  if (c == "softmax_cross_entropy")
-    return spar::softmax_cross_entropy(x[0], x[1], static_cast<int>(p[0]));
-  if (c == "binary_cross_entropy_with_logits")
-    return spar::binary_cross_entropy_with_logits(x[0], x[1]);
-  if (c == "conv2d") return spar::conv2d(x[0], x[1], geometry(p));
-  if (c == "conv2d_transpose") return spar::conv2d_transpose(x[0], x[1], geometry(p), p[4], p[5]);
+  if (c == "class_cross_entropy")
+    return spar::class_cross_entropy(x[0], x[1], static_cast<int>(p[0]));
+  if (c == "binary_cross_entropy_from_logits")
+    return spar::binary_cross_entropy_from_logits(x[0], x[1]);
+  if (c == "convolution") return spar::convolution(x[0], x[1], geometry(p));
+  if (c == "transposed_convolution")
+    return spar::transposed_convolution(x[0], x[1], geometry(p), p[4], p[5]);
   usage_error("case '" + c + "' has no evaluation");  // kCases and this list disagree
 }
 

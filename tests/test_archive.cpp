@@ -31,7 +31,6 @@ using spar::ErrorKind;
 using spar::Shape;
 using spar::Tensor;
 
-
 // CRC-32 computed bit by bit straight from its definition (reflected polynomial 0xEDB88320,
 // initial value and final xor 0xFFFFFFFF), sharing no code with the table-driven one.
 uint32_t crc32_bitwise(const std::string& bytes) {

@@ -1,9 +1,9 @@
 // 2-D convolutions (engine/conv_geometry.h, engine/kernels.h): output sizes against the
 // relations of Dumoulin & Visin (2016), "A guide to convolution arithmetic for deep learning";
-// the adjoint identity that ties conv2d, conv2d_transpose and conv2d_weight_gradient together
-// (a fact of linear algebra); shape errors that name the operation and the shapes; and
-// bit-identical results with 1 and 2 threads. Values and gradients against scipy live in
-// tests/reference/check_conv.py.
+// the adjoint identity that ties convolution, transposed_convolution and
+// convolution_weight_gradient together (a fact of linear algebra); shape errors that name the
+// operation and the shapes; and bit-identical results with 1 and 2 threads. Values and gradients
+// against scipy live in tests/reference/check_conv.py.
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <functional>
@@ -64,7 +64,7 @@ TEST_CASE("conv output extent follows relation 6 of Dumoulin and Visin", "[conv]
   }
 
   // A sweep, along the height and (separately) the width axis, comparing the relation with
-  // conv_output_extent and with the shape kernels::conv2d actually produces.
+  // conv_output_extent and with the shape kernels::convolution actually produces.
   for (int64_t i = 1; i <= 12; ++i)
     for (int64_t k = 1; k <= 6; ++k)
       for (int64_t s = 1; s <= 4; ++s)
@@ -76,14 +76,14 @@ TEST_CASE("conv output extent follows relation 6 of Dumoulin and Visin", "[conv]
           const auto w_w = Tensor<float>::zeros({3, 2, 1, k});
           if (i + 2 * p < k) {  // the kernel does not fit the padded input
             CHECK(raises_bad_shape([&] { conv_output_extent(i, k, s, p, "test"); }));
-            CHECK(raises_bad_shape([&] { kernels::conv2d(x_h, w_h, geometry(s, 1, p, 0)); }));
-            CHECK(raises_bad_shape([&] { kernels::conv2d(x_w, w_w, geometry(1, s, 0, p)); }));
+            CHECK(raises_bad_shape([&] { kernels::convolution(x_h, w_h, geometry(s, 1, p, 0)); }));
+            CHECK(raises_bad_shape([&] { kernels::convolution(x_w, w_w, geometry(1, s, 0, p)); }));
             continue;
           }
           const int64_t o = relation_conv(i, k, s, p);
           CHECK(conv_output_extent(i, k, s, p, "test") == o);
-          CHECK(kernels::conv2d(x_h, w_h, geometry(s, 1, p, 0)).shape() == Shape{1, 3, o, 3});
-          CHECK(kernels::conv2d(x_w, w_w, geometry(1, s, 0, p)).shape() == Shape{1, 3, 3, o});
+          CHECK(kernels::convolution(x_h, w_h, geometry(s, 1, p, 0)).shape() == Shape{1, 3, o, 3});
+          CHECK(kernels::convolution(x_w, w_w, geometry(1, s, 0, p)).shape() == Shape{1, 3, 3, o});
         }
 }
 
@@ -125,16 +125,17 @@ TEST_CASE("transposed conv output extent follows the relation of Dumoulin and Vi
             const auto w_w = Tensor<float>::zeros({2, 3, 1, k});
             const ConvGeometry g_h = geometry(s, 1, p, 0), g_w = geometry(1, s, 0, p);
             const auto y_h =
-                kernels::conv2d_transpose(Tensor<float>::zeros({1, 2, i, 2}), w_h, g_h, o, 2);
+                kernels::transposed_convolution(Tensor<float>::zeros({1, 2, i, 2}), w_h, g_h, o, 2);
             const auto y_w =
-                kernels::conv2d_transpose(Tensor<float>::zeros({1, 2, 2, i}), w_w, g_w, 2, o);
+                kernels::transposed_convolution(Tensor<float>::zeros({1, 2, 2, i}), w_w, g_w, 2, o);
             CHECK(y_h.shape() == Shape{1, 3, o, 2});
             CHECK(y_w.shape() == Shape{1, 3, 2, o});
-            CHECK(kernels::conv2d(y_h, w_h, g_h).shape() == Shape{1, 2, i, 2});
-            CHECK(kernels::conv2d(y_w, w_w, g_w).shape() == Shape{1, 2, 2, i});
+            CHECK(kernels::convolution(y_h, w_h, g_h).shape() == Shape{1, 2, i, 2});
+            CHECK(kernels::convolution(y_w, w_w, g_w).shape() == Shape{1, 2, 2, i});
             // An output padding of s or more (o' + s − a) is not a transposed output of i'.
             CHECK(raises_bad_shape([&] {
-              kernels::conv2d_transpose(Tensor<float>::zeros({1, 2, i, 2}), w_h, g_h, o + s - a, 2);
+              kernels::transposed_convolution(Tensor<float>::zeros({1, 2, i, 2}), w_h, g_h,
+                                              o + s - a, 2);
             }));
           }
 }
@@ -167,9 +168,10 @@ struct AdjointCase {
 
 }  // namespace
 
-TEST_CASE("conv2d and conv2d_transpose and conv2d_weight_gradient are adjoint", "[conv][adjoint]") {
-  // For the bilinear map y = conv(x, w): ⟨conv2d(x, w), z⟩ = ⟨x, conv2d_transpose(z, w)⟩ =
-  // ⟨w, conv2d_weight_gradient(x, z)⟩, all three being Σ x·w·z over the same index triples
+TEST_CASE("convolution and transposed_convolution and convolution_weight_gradient are adjoint",
+          "[conv][adjoint]") {
+  // For the bilinear map y = conv(x, w): ⟨convolution(x, w), z⟩ = ⟨x, transposed_convolution(z, w)⟩
+  // = ⟨w, convolution_weight_gradient(x, z)⟩, all three being Σ x·w·z over the same index triples
   // (linear algebra: the definition of the adjoint). Each side is computed as inner sums then
   // an outer sum, so each is within γ_K·Σ|x||w||z| of the exact value, K the total number of
   // terms added on its path (Higham, the dot-product bound); two sides differ by at most
@@ -194,10 +196,11 @@ TEST_CASE("conv2d and conv2d_transpose and conv2d_weight_gradient are adjoint", 
     const int64_t ow = conv_output_extent(wd, kw, c.g.stride_w, c.g.pad_w, "test");
     const Tensor<double> z = rng.uniform<double>({n, o, oh, ow}, -1, 1);
 
-    const double forward = inner(kernels::conv2d(x, w, c.g), z);
-    const double transposed = inner(x, kernels::conv2d_transpose(z, w, c.g, h, wd));
-    const double weight = inner(w, kernels::conv2d_weight_gradient(x, z, c.g, kh, kw));
-    const double magnitude = inner(kernels::conv2d(absolute(x), absolute(w), c.g), absolute(z));
+    const double forward = inner(kernels::convolution(x, w, c.g), z);
+    const double transposed = inner(x, kernels::transposed_convolution(z, w, c.g, h, wd));
+    const double weight = inner(w, kernels::convolution_weight_gradient(x, z, c.g, kh, kw));
+    const double magnitude =
+        inner(kernels::convolution(absolute(x), absolute(w), c.g), absolute(z));
     const double k = static_cast<double>(ch * kh * kw + n * o * oh * ow + o * kh * kw +
                                          n * ch * h * wd + n * oh * ow + o * ch * kh * kw);
     const double tol = 2 * summation_gamma(k) * magnitude / (1 - summation_gamma(k));
@@ -228,29 +231,29 @@ TEST_CASE("convolution shape errors name the operation and the shapes", "[conv][
 
   // Mismatched channels: the input has 3, the weight expects 2.
   std::string m = bad_shape_message([&] {
-    kernels::conv2d(F::zeros({2, 3, 5, 5}), F::zeros({4, 2, 3, 3}), s1);
+    kernels::convolution(F::zeros({2, 3, 5, 5}), F::zeros({4, 2, 3, 3}), s1);
   });
-  CHECK_THAT(m, Catch::Contains("conv2d") && Catch::Contains("[2, 3, 5, 5]") &&
+  CHECK_THAT(m, Catch::Contains("convolution") && Catch::Contains("[2, 3, 5, 5]") &&
                     Catch::Contains("[4, 2, 3, 3]"));
   m = bad_shape_message([&] {
-    kernels::conv2d_transpose(F::zeros({2, 4, 3, 3}), F::zeros({5, 2, 3, 3}), s1, 5, 5);
+    kernels::transposed_convolution(F::zeros({2, 4, 3, 3}), F::zeros({5, 2, 3, 3}), s1, 5, 5);
   });
-  CHECK_THAT(m, Catch::Contains("conv2d_transpose") && Catch::Contains("[2, 4, 3, 3]") &&
+  CHECK_THAT(m, Catch::Contains("transposed_convolution") && Catch::Contains("[2, 4, 3, 3]") &&
                     Catch::Contains("[5, 2, 3, 3]"));
   m = bad_shape_message([&] {
-    kernels::conv2d_weight_gradient(F::zeros({2, 3, 5, 5}), F::zeros({2, 4, 3, 4}), s1, 3, 3);
+    kernels::convolution_weight_gradient(F::zeros({2, 3, 5, 5}), F::zeros({2, 4, 3, 4}), s1, 3, 3);
   });
-  CHECK_THAT(m, Catch::Contains("conv2d_weight_gradient") && Catch::Contains("[2, 3, 5, 5]") &&
+  CHECK_THAT(m, Catch::Contains("convolution_weight_gradient") && Catch::Contains("[2, 3, 5, 5]") &&
                     Catch::Contains("[2, 4, 3, 4]"));
 
   // A kernel that does not fit: 6 rows over 3 input rows with no padding.
   m = bad_shape_message([&] {
-    kernels::conv2d(F::zeros({1, 2, 3, 4}), F::zeros({1, 2, 6, 2}), s1);
+    kernels::convolution(F::zeros({1, 2, 3, 4}), F::zeros({1, 2, 6, 2}), s1);
   });
-  CHECK_THAT(m, Catch::Contains("conv2d") && Catch::Contains("[1, 2, 3, 4]") &&
+  CHECK_THAT(m, Catch::Contains("convolution") && Catch::Contains("[1, 2, 3, 4]") &&
                     Catch::Contains("[1, 2, 6, 2]"));
   // The same kernel fits once padded: 3 + 2·2 ≥ 6.
-  CHECK(kernels::conv2d(F::zeros({1, 2, 3, 4}), F::zeros({1, 2, 6, 2}), geometry(1, 1, 2, 0))
+  CHECK(kernels::convolution(F::zeros({1, 2, 3, 4}), F::zeros({1, 2, 6, 2}), geometry(1, 1, 2, 0))
             .shape() == Shape{1, 1, 2, 3});
 
   // Bad output padding: with stride 2 a 3 × 3 input has transposed outputs 7 or 8 rows
@@ -260,23 +263,24 @@ TEST_CASE("convolution shape errors name the operation and the shapes", "[conv][
   CHECK_THAT(bad_shape_message([&] { conv_transpose_output_extent(3, 3, 2, 0, -1, "layer"); }),
              Catch::Contains("layer") && Catch::Contains("output padding -1"));
   m = bad_shape_message([&] {
-    kernels::conv2d_transpose(F::zeros({1, 2, 3, 3}), F::zeros({2, 1, 3, 3}), s2, 9, 7);
+    kernels::transposed_convolution(F::zeros({1, 2, 3, 3}), F::zeros({2, 1, 3, 3}), s2, 9, 7);
   });
-  CHECK_THAT(m, Catch::Contains("conv2d_transpose") && Catch::Contains("[1, 2, 3, 3]") &&
+  CHECK_THAT(m, Catch::Contains("transposed_convolution") && Catch::Contains("[1, 2, 3, 3]") &&
                     Catch::Contains("9") && Catch::Contains("7"));
-  CHECK(
-      kernels::conv2d_transpose(F::zeros({1, 2, 3, 3}), F::zeros({2, 1, 3, 3}), s2, 8, 7).shape() ==
-      Shape{1, 1, 8, 7});
+  CHECK(kernels::transposed_convolution(F::zeros({1, 2, 3, 3}), F::zeros({2, 1, 3, 3}), s2, 8, 7)
+            .shape() == Shape{1, 1, 8, 7});
 
   // Not rank 4.
-  m = bad_shape_message([&] { kernels::conv2d(F::zeros({3, 5, 5}), F::zeros({4, 3, 3, 3}), s1); });
-  CHECK_THAT(m, Catch::Contains("conv2d") && Catch::Contains("[3, 5, 5]"));
+  m = bad_shape_message([&] {
+    kernels::convolution(F::zeros({3, 5, 5}), F::zeros({4, 3, 3, 3}), s1);
+  });
+  CHECK_THAT(m, Catch::Contains("convolution") && Catch::Contains("[3, 5, 5]"));
   // Stride 0 and negative padding.
   CHECK(raises_bad_shape([&] {
-    kernels::conv2d(F::zeros({1, 1, 5, 5}), F::zeros({1, 1, 3, 3}), geometry(0, 1, 0, 0));
+    kernels::convolution(F::zeros({1, 1, 5, 5}), F::zeros({1, 1, 3, 3}), geometry(0, 1, 0, 0));
   }));
   CHECK(raises_bad_shape([&] {
-    kernels::conv2d(F::zeros({1, 1, 5, 5}), F::zeros({1, 1, 3, 3}), geometry(1, 1, 0, -1));
+    kernels::convolution(F::zeros({1, 1, 5, 5}), F::zeros({1, 1, 3, 3}), geometry(1, 1, 0, -1));
   }));
 }
 
@@ -309,10 +313,10 @@ TEST_CASE("convolutions are bit-identical with 1 and 2 threads at batch 64", "[c
     const Tensor<float> z = rng.uniform<float>({64, o, oh, oh}, -1, 1);
     const std::string tag = std::to_string(c) + "→" + std::to_string(o) + " at " +
                             std::to_string(h) + "×" + std::to_string(h);
-    check_thread_independent("conv2d " + tag, [&] { return kernels::conv2d(x, w, g); });
-    check_thread_independent("conv2d_transpose " + tag,
-                             [&] { return kernels::conv2d_transpose(z, w, g, h, h); });
-    check_thread_independent("conv2d_weight_gradient " + tag,
-                             [&] { return kernels::conv2d_weight_gradient(x, z, g, 4, 4); });
+    check_thread_independent("convolution " + tag, [&] { return kernels::convolution(x, w, g); });
+    check_thread_independent("transposed_convolution " + tag,
+                             [&] { return kernels::transposed_convolution(z, w, g, h, h); });
+    check_thread_independent("convolution_weight_gradient " + tag,
+                             [&] { return kernels::convolution_weight_gradient(x, z, g, 4, 4); });
   }
 }

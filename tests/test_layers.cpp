@@ -9,8 +9,8 @@
 #include "layers/dense.h"
 #include "layers/gradient_cases.h"
 #include "layers/init.h"
+#include "layers/layer_stack.h"
 #include "layers/normalisation.h"
-#include "layers/sequential.h"
 #include "tests/support.h"
 
 using namespace spar;
@@ -26,16 +26,16 @@ TEST_CASE("every layer's gradients match central differences, first and second o
 }
 
 namespace {
-Sequential<float> small_critic(Rng& rng) {
-  Sequential<float> net;
+LayerStack<float> small_critic(Rng& rng) {
+  LayerStack<float> net;
   ConvOptions conv;
   conv.kernel_h = conv.kernel_w = 4;
   conv.geometry = {2, 2, 1, 1};
-  auto& block = net.emplace<Sequential<float>>("block1");
-  block.emplace<Conv2d<float>>("conv", 3, 8, conv, rng);
-  block.emplace<BatchNorm<float>>("norm", 8);
-  block.emplace<Activation<float>>("act", ActivationKind::kLeakyRelu, 0.2);
-  net.emplace<Reshape<float>>("flat", Shape{8 * 4 * 4});
+  auto& block = net.emplace<LayerStack<float>>("block1");
+  block.emplace<Convolution<float>>("conv", 3, 8, conv, rng);
+  block.emplace<BatchNormalisation<float>>("norm", 8);
+  block.emplace<Nonlinearity<float>>("act", NonlinearityKind::kLeakyRelu, 0.2);
+  net.emplace<PerSampleReshape<float>>("flat", Shape{8 * 4 * 4});
   net.emplace<Dense<float>>("out", 128, 1, DenseOptions{}, rng);
   return net;
 }
@@ -43,34 +43,34 @@ Sequential<float> small_critic(Rng& rng) {
 
 TEST_CASE("parameters and buffers carry stable hierarchical names", "[layers]") {
   Rng rng(1, 1);
-  Sequential<float> net = small_critic(rng);
+  LayerStack<float> net = small_critic(rng);
   std::vector<std::string> names;
-  for (const auto& p : net.named_parameters("critic")) names.push_back(p.name);
+  for (const auto& p : net.all_parameters("critic")) names.push_back(p.name);
   CHECK(names == std::vector<std::string>{"critic.block1.conv.weight", "critic.block1.conv.bias",
                                           "critic.block1.norm.scale", "critic.block1.norm.shift",
                                           "critic.out.weight", "critic.out.bias"});
   std::vector<std::string> buffers;
-  for (const auto& b : net.named_buffers("critic")) buffers.push_back(b.name);
+  for (const auto& b : net.all_state("critic")) buffers.push_back(b.name);
   CHECK(buffers == std::vector<std::string>{"critic.block1.norm.running_mean",
                                             "critic.block1.norm.running_variance"});
-  CHECK_THROWS_AS(net.emplace<Activation<float>>("out", ActivationKind::kTanh), Error);
+  CHECK_THROWS_AS(net.emplace<Nonlinearity<float>>("out", NonlinearityKind::kTanh), Error);
 }
 
 TEST_CASE("a model saved to an archive loads back exactly and refuses another architecture",
           "[layers]") {
   Rng rng(2, 1);
-  Sequential<float> a = small_critic(rng), b = small_critic(rng);  // different weights
+  LayerStack<float> a = small_critic(rng), b = small_critic(rng);  // different weights
   Tape<float> tape;
   Context<float> train(&tape, true);
-  a.forward(Var<float>(rng.uniform<float>({4, 3, 8, 8})), train);  // running statistics move
+  a.run(Var<float>(rng.uniform<float>({4, 3, 8, 8})), train);  // running statistics move
   Archive archive;
   a.save(archive, "critic");
   b.load(Archive::from_bytes(archive.to_bytes(), "memory"), "critic");
-  const auto pa = a.named_parameters(), pb = b.named_parameters();
+  const auto pa = a.all_parameters(), pb = b.all_parameters();
   for (size_t i = 0; i < pa.size(); ++i) CHECK(testing::same_bits(*pa[i].tensor, *pb[i].tensor));
-  CHECK(testing::same_bits(*a.named_buffers()[0].tensor, *b.named_buffers()[0].tensor));
+  CHECK(testing::same_bits(*a.all_state()[0].tensor, *b.all_state()[0].tensor));
 
-  Sequential<float> other;
+  LayerStack<float> other;
   other.emplace<Dense<float>>("out", 64, 1, DenseOptions{}, rng);
   std::string message;
   CHECK(testing::error_kind_of([&] { other.load(archive, "critic"); }, &message) ==
@@ -112,7 +112,7 @@ TEST_CASE("dropout keeps the expectation and is the identity in evaluation steps
   Dropout<double> drop(0.25);
   const Var<double> x(Tensor<double>::full({100000}, 1.0));
   Context<double> train(nullptr, true, &stream), eval(nullptr, false);
-  const Tensor<double> y = drop.forward(x, train).value();
+  const Tensor<double> y = drop.run(x, train).value();
   int64_t zeros = 0;
   double total = 0;
   for (double v : y.to_vector()) {
@@ -122,21 +122,21 @@ TEST_CASE("dropout keeps the expectation and is the identity in evaluation steps
   // Binomial(1e5, 0.25): standard deviation ≈ 137 (a fact of the trade).
   CHECK(std::abs(zeros - 25000) < 5 * 137);
   CHECK(total / 1e5 == Approx(1.0).epsilon(0.01));
-  CHECK(testing::same_bits(drop.forward(x, eval).value(), x.value()));
+  CHECK(testing::same_bits(drop.run(x, eval).value(), x.value()));
   Context<double> no_stream(nullptr, true);
-  CHECK_THROWS_WITH(drop.forward(x, no_stream), Catch::Contains("dropout"));
+  CHECK_THROWS_WITH(drop.run(x, no_stream), Catch::Contains("dropout"));
 }
 
 TEST_CASE("layer shape errors name the layer and the shapes", "[layers]") {
   Rng rng(5, 1);
   Dense<float> dense(3, 4, DenseOptions{}, rng);
   Context<float> ctx(nullptr, false);
-  CHECK_THROWS_WITH(dense.forward(Var<float>(Tensor<float>::zeros({2, 5})), ctx),
+  CHECK_THROWS_WITH(dense.run(Var<float>(Tensor<float>::zeros({2, 5})), ctx),
                     Catch::Contains("dense 3→4") && Catch::Contains("[2, 5]"));
-  Conv2d<float> conv(3, 8, ConvOptions{}, rng);
-  CHECK_THROWS_WITH(conv.forward(Var<float>(Tensor<float>::zeros({1, 2, 5, 5})), ctx),
-                    Catch::Contains("conv2d 3→8") && Catch::Contains("[1, 2, 5, 5]"));
-  AveragePool2d<float> pool(2);
-  CHECK_THROWS_WITH(pool.forward(Var<float>(Tensor<float>::zeros({1, 1, 5, 4})), ctx),
+  Convolution<float> conv(3, 8, ConvOptions{}, rng);
+  CHECK_THROWS_WITH(conv.run(Var<float>(Tensor<float>::zeros({1, 2, 5, 5})), ctx),
+                    Catch::Contains("convolution 3→8") && Catch::Contains("[1, 2, 5, 5]"));
+  AveragePooling<float> pool(2);
+  CHECK_THROWS_WITH(pool.run(Var<float>(Tensor<float>::zeros({1, 1, 5, 4})), ctx),
                     Catch::Contains("multiples of 2"));
 }

@@ -83,7 +83,7 @@ TEST_CASE("softplus, log_sigmoid, sigmoid and the cross-entropies are finite and
   CHECK(log_sigmoid(xf).value().at({0}) == -100.0f);
   CHECK(std::isfinite(log_sigmoid(xf).value().at({1})));
   // BCE from logits with target 1 at z = −100 is 100 (−log σ(−100)); at z = 100 it is ≈ e^−100.
-  const D bce = binary_cross_entropy_with_logits(V(D::from_values({2}, {-100, 100})),
+  const D bce = binary_cross_entropy_from_logits(V(D::from_values({2}, {-100, 100})),
                                                  V(D::from_values({2}, {1, 0})))
                     .value();
   CHECK(bce.at({0}) == Approx(100.0).epsilon(1e-15));
@@ -91,8 +91,8 @@ TEST_CASE("softplus, log_sigmoid, sigmoid and the cross-entropies are finite and
   // log Σ exp of [1000, 1000] = 1000 + log 2; softmax cross-entropy of a confident, right row ≈ 0.
   const D lse = log_sum_exp(V(D::from_values({1, 2}, {1000, 1000})), 1).value();
   CHECK(lse.at({0}) == Approx(1000 + std::log(2.0)).epsilon(1e-15));
-  const D ce = softmax_cross_entropy(V(D::from_values({1, 3}, {500, -500, 0})),
-                                     V(D::from_values({1, 3}, {1, 0, 0})), 1)
+  const D ce = class_cross_entropy(V(D::from_values({1, 3}, {500, -500, 0})),
+                                   V(D::from_values({1, 3}, {1, 0, 0})), 1)
                    .value();
   CHECK(ce.at({0}) == Approx(0.0).margin(1e-200));
 }
@@ -130,7 +130,7 @@ TEST_CASE("broadcasting covers scalar, per-row, per-column and per-channel opera
   const V nchw(D::full({2, 3, 2, 2}, 1.0));
   const D per_channel = divide(nchw, V(D::from_values({1, 3, 1, 1}, {1, 2, 4}))).value();
   CHECK(per_channel.at({1, 2, 1, 0}) == 0.25);
-  CHECK(sum_to(V(D::full({2, 3, 2, 2}, 1.0)), {1, 3, 1, 1}).value().at({0, 1, 0, 0}) == 8);
+  CHECK(sum_into_shape(V(D::full({2, 3, 2, 2}, 1.0)), {1, 3, 1, 1}).value().at({0, 1, 0, 0}) == 8);
 }
 
 TEST_CASE("regression: max marks the first NaN of a lane, as numpy.argmax does",

@@ -34,8 +34,6 @@ using spar::RmsPropOptions;
 using spar::Shape;
 using spar::Tensor;
 
-
-
 // The test problem: f(θ) = ½ Σ a_k (θ_k − c_k)², gradient a_k (θ_k − c_k), over six values
 // split into two parameter tensors of shapes [2, 2] and [2]. All constants are exact in
 // float, so float and double runs start from identical values.

@@ -41,13 +41,15 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
     return kernels::binary(kernels::Binary::kDivide, big, channel, "divide");
   });
   check_thread_independent("sum to per-channel", [&] {
-    return kernels::sum_to(big, {1, 32, 1, 1});
+    return kernels::sum_into_shape(big, {1, 32, 1, 1});
   });
-  check_thread_independent("sum to leading", [&] { return kernels::sum_to(big, {32, 16, 16}); });
+  check_thread_independent("sum to leading", [&] {
+    return kernels::sum_into_shape(big, {32, 16, 16});
+  });
   check_thread_independent("sum to per-sample", [&] {
-    return kernels::sum_to(big, {64, 1, 1, 1});
+    return kernels::sum_into_shape(big, {64, 1, 1, 1});
   });
-  check_thread_independent("sum all", [&] { return kernels::sum_to(big, {}); });
+  check_thread_independent("sum all", [&] { return kernels::sum_into_shape(big, {}); });
   check_thread_independent("max along 1",
                            [&] { return kernels::max_along<float>(big, 1, nullptr); });
   check_thread_independent("log_sum_exp along 3",

@@ -285,8 +285,8 @@ TEMPLATE_TEST_CASE("fills are bit-identical with one thread and with two", "[ran
 }
 #endif
 
-TEMPLATE_TEST_CASE("uniform values lie at or above low and below high, with the right mean", "[random][stats]",
-                   float, double) {
+TEMPLATE_TEST_CASE("uniform values lie at or above low and below high, with the right mean",
+                   "[random][stats]", float, double) {
   const int64_t n = 1000000;
   const TestType low = -3, high = 2;
   Rng rng(7, spar::derive_stream(7, "uniform test"));

@@ -180,5 +180,6 @@ TEST_CASE("vector_jacobian_product seeds the adjoint of a non-scalar value", "[t
   const D g = tape.vector_jacobian_product(x * x, {x}, V(vec({3.0, 0.5})))[0].value();
   CHECK(g.at({0}) == 9.0);
   CHECK(g.at({1}) == -2.0);
-  CHECK_THROWS_WITH(tape.vector_jacobian_product(x * x, {x}, V(vec({1.0}))), Catch::Contains("seed"));
+  CHECK_THROWS_WITH(tape.vector_jacobian_product(x * x, {x}, V(vec({1.0}))),
+                    Catch::Contains("seed"));
 }

@@ -10,20 +10,20 @@ sum(wt * y) with respect to both operands, for a random weight wt shaped like y.
 
 The references are computed independently of the engine's lowering (no unfolding into
 columns, no matrix product):
-  conv2d, value: pad x with numpy.pad, correlate each (output channel, input channel) pair
+  convolution, value: pad x with numpy.pad, correlate each (output channel, input channel) pair
     in 'valid' mode with scipy.signal.correlate, sum over input channels, keep every
     stride-th row and column.
-  conv2d, input gradient: insert stride-1 zeros between the entries of the output adjoint
+  convolution, input gradient: insert stride-1 zeros between the entries of the output adjoint
     (dilate), convolve each pair in 'full' mode with scipy.signal.convolve, sum over output
     channels, crop the padding.
-  conv2d, weight gradient: correlate the padded input with the dilated output adjoint in
+  convolution, weight gradient: correlate the padded input with the dilated output adjoint in
     'valid' mode (scipy.signal.correlate), summed over the batch.
-  conv2d_transpose, value: its definition: scatter each input pixel times the kernel into the
+  transposed_convolution, value: its definition: scatter each input pixel times the kernel into the
     output at stride steps, then crop the padding (numpy slicing and numpy.einsum). The output
     size follows Dumoulin & Visin (2016), "A guide to convolution arithmetic for deep
     learning": o' = s(i' - 1) + a + k - 2p, a the output padding.
-  conv2d_transpose, gradients: as a function of its input it is the adjoint of conv2d, so
-    d/dz = conv2d(wt, w) (correlation reference above); as a function of its kernel,
+  transposed_convolution, gradients: as a function of its input it is the adjoint of convolution, so
+    d/dz = convolution(wt, w) (correlation reference above); as a function of its kernel,
     d/dw[o,c,p,q] = sum_{n,i,j} wt[n, c, i s + p - pad, j s + q - pad] z[n,o,i,j], the
     correlation of the padded wt with the dilated z (the weight-gradient reference above).
 scipy is asked for method='direct' so that it sums products (an FFT would not satisfy the
@@ -37,7 +37,7 @@ roundoff of the engine's element type. sum |terms| is the same reference applied
 absolute values of both operands (every map here is bilinear with non-negative structure).
 The reference's own float64 rounding adds gamma_K(2^-53) for the reference and as much again
 for the magnitude, as in check_ops.py: tol = (gamma_K(u) + 2 gamma_K(u64)) sum |terms|. K is
-C KH KW for a conv2d value, O KH KW for its input gradient (an upper bound: a stride skips
+C KH KW for a convolution value, O KH KW for its input gradient (an upper bound: a stride skips
 some taps), N OH OW for its weight gradient, and the same counts for the transposed
 convolution. Entries that no product reaches (rows beyond the last window when the stride does
 not divide the span, padding-only outputs of a 1x1 kernel) have sum |terms| = 0 and must be
@@ -148,7 +148,7 @@ def transposed_value(z, w, s, p, h, wd):
 
 # ---- cases -----------------------------------------------------------------------------------
 
-# conv2d: (x shape N C H W, w shape O C KH KW, stride (h, w), padding (h, w)). Non-square
+# convolution: (x shape N C H W, w shape O C KH KW, stride (h, w), padding (h, w)). Non-square
 # inputs and kernels, stride 3, padding 2, 1x1 kernels, batch 1 and 5, channels 1 and 7, and
 # spans (i + 2p - k) that the stride does not divide.
 CONV_CASES = [
@@ -164,7 +164,7 @@ CONV_CASES = [
     ((5, 2, 33, 20), (3, 2, 3, 4), (1, 1), (1, 2)),
 ]
 
-# conv2d_transpose: (z shape N O OH OW, w shape O C KH KW, stride, padding, output padding
+# transposed_convolution: (z shape N O OH OW, w shape O C KH KW, stride, padding, output padding
 # (a_h, a_w)); the output size is o' = s(i' - 1) + a + k - 2p (Dumoulin & Visin 2016).
 TRANSPOSE_CASES = [
     ((5, 7, 4, 4), (7, 3, 4, 4), (2, 2), (1, 1), (0, 0)),
@@ -198,7 +198,7 @@ def run_conv(dump, g, dtype, x, w, s, p, exact, tag):
     u = unit_roundoff(dtype)
     y_ref = conv_value(x, w, s, p)
     wt = g.weight(y_ref.shape, dtype, exact)
-    y, gx, gw = dump.run(dtype, "conv2d", [x, w], wt, (s[0], s[1], p[0], p[1]))
+    y, gx, gw = dump.run(dtype, "convolution", [x, w], wt, (s[0], s[1], p[0], p[1]))
     gx_ref = conv_input_gradient(wt, w, s, p, h, wd)
     gw_ref = conv_weight_gradient(x, wt, s, p, kh, kw)
     if exact:
@@ -208,9 +208,9 @@ def run_conv(dump, g, dtype, x, w, s, p, exact, tag):
         tols = (bound(c * kh * kw, u, conv_value(ax, aw, s, p)),
                 bound(o * kh * kw, u, conv_input_gradient(awt, aw, s, p, h, wd)),
                 bound(n * oh * ow, u, conv_weight_gradient(ax, awt, s, p, kh, kw)))
-    g.compare(f"conv2d value {tag}", y, y_ref, tols[0])
-    g.compare(f"conv2d d/dx {tag}", gx, gx_ref, tols[1])
-    g.compare(f"conv2d d/dw {tag}", gw, gw_ref, tols[2])
+    g.compare(f"convolution value {tag}", y, y_ref, tols[0])
+    g.compare(f"convolution d/dx {tag}", gx, gx_ref, tols[1])
+    g.compare(f"convolution d/dw {tag}", gw, gw_ref, tols[2])
 
 
 def run_transpose(dump, g, dtype, z, w, s, p, a, exact, tag):
@@ -221,7 +221,7 @@ def run_transpose(dump, g, dtype, z, w, s, p, a, exact, tag):
     u = unit_roundoff(dtype)
     y_ref = transposed_value(z, w, s, p, h, wd)
     wt = g.weight(y_ref.shape, dtype, exact)
-    y, gz, gw = dump.run(dtype, "conv2d_transpose", [z, w], wt, (s[0], s[1], p[0], p[1], h, wd))
+    y, gz, gw = dump.run(dtype, "transposed_convolution", [z, w], wt, (s[0], s[1], p[0], p[1], h, wd))
     gz_ref = conv_value(wt, w, s, p)
     gw_ref = conv_weight_gradient(wt, z, s, p, kh, kw)
     if exact:
@@ -231,9 +231,9 @@ def run_transpose(dump, g, dtype, z, w, s, p, a, exact, tag):
         tols = (bound(o * kh * kw, u, transposed_value(az, aw, s, p, h, wd)),
                 bound(c * kh * kw, u, conv_value(awt, aw, s, p)),
                 bound(n * ih * iw, u, conv_weight_gradient(awt, az, s, p, kh, kw)))
-    g.compare(f"conv2d_transpose value {tag}", y, y_ref, tols[0])
-    g.compare(f"conv2d_transpose d/dz {tag}", gz, gz_ref, tols[1])
-    g.compare(f"conv2d_transpose d/dw {tag}", gw, gw_ref, tols[2])
+    g.compare(f"transposed_convolution value {tag}", y, y_ref, tols[0])
+    g.compare(f"transposed_convolution d/dz {tag}", gz, gz_ref, tols[1])
+    g.compare(f"transposed_convolution d/dw {tag}", gw, gw_ref, tols[2])
 
 
 class ConvGroup(Group):
@@ -253,7 +253,7 @@ BOUND_WHY = ("|error| <= (gamma_K(u) + 2 gamma_K(u64)) sum|terms| per entry (dot
 
 
 def check_conv(dump, rng, dtype, cases):
-    g = ConvGroup(f"conv2d {dtype} value, d/dx, d/dw on {len(cases)} shapes (batch 1 and 5, "
+    g = ConvGroup(f"convolution {dtype} value, d/dx, d/dw on {len(cases)} shapes (batch 1 and 5, "
                   f"channels 1 and 7, strides to 3, padding to 2, 1x1 and non-square kernels)",
                   "reference scipy.signal.correlate / convolve (direct) of numpy.pad-ded "
                   "inputs; " + BOUND_WHY, rng)
@@ -265,7 +265,7 @@ def check_conv(dump, rng, dtype, cases):
 
 
 def check_transpose(dump, rng, dtype, cases):
-    g = ConvGroup(f"conv2d_transpose {dtype} value, d/dz, d/dw on {len(cases)} shapes "
+    g = ConvGroup(f"transposed_convolution {dtype} value, d/dz, d/dw on {len(cases)} shapes "
                   f"(output padding 0 to 2, strides to 3, padding to 2, 1x1 kernels)",
                   "reference: scatter definition with output size o' = s(i'-1) + a + k - 2p "
                   "(Dumoulin & Visin 2016); gradients scipy.signal.correlate (direct); " +
@@ -278,7 +278,7 @@ def check_transpose(dump, rng, dtype, cases):
 
 
 def check_exact(dump, rng):
-    g = ConvGroup("conv2d and conv2d_transpose f64 and f32 on integer-valued inputs in -3..3, "
+    g = ConvGroup("convolution and transposed_convolution f64 and f32 on integer-valued inputs in -3..3, "
                   "all shapes, value and both gradients",
                   "reference as above; exact: every product and partial sum is an integer of "
                   "magnitude below 2^24, so both the engine and scipy compute it without "
@@ -306,12 +306,12 @@ def check_reference_sizes(rng):
     for xs, ws, s, p in CONV_CASES:
         n, c, h, wd, o, kh, kw, oh, ow = conv_shapes(xs, ws, s, p)
         got = conv_value(rng.standard_normal(xs), rng.standard_normal(ws), s, p).shape
-        g.compare(f"conv2d value shape {xs} {ws}", np.array(got), np.array((n, o, oh, ow)), 0.0)
+        g.compare(f"convolution value shape {xs} {ws}", np.array(got), np.array((n, o, oh, ow)), 0.0)
     for zs, ws, s, p, a in TRANSPOSE_CASES:
         h = transposed_extent(zs[2], ws[2], s[0], p[0], a[0])
         wd = transposed_extent(zs[3], ws[3], s[1], p[1], a[1])
         y = transposed_value(rng.standard_normal(zs), rng.standard_normal(ws), s, p, h, wd)
-        g.compare(f"conv2d_transpose value shape {zs} {ws}", np.array(y.shape),
+        g.compare(f"transposed_convolution value shape {zs} {ws}", np.array(y.shape),
                   np.array((zs[0], ws[1], h, wd)), 0.0)
         # the transposed output size gives back i' under the convolution relation
         g.compare(f"conv of o' gives i' {zs} {ws}",
@@ -332,10 +332,10 @@ def main(argv):
     passed = failed = 0
     checks = [
         ("reference sizes", lambda d: check_reference_sizes(rng)),
-        ("conv2d f64", lambda d: check_conv(d, rng, "f64", CONV_CASES)),
-        ("conv2d_transpose f64", lambda d: check_transpose(d, rng, "f64", TRANSPOSE_CASES)),
-        ("conv2d f32", lambda d: check_conv(d, rng, "f32", CONV_CASES)),
-        ("conv2d_transpose f32", lambda d: check_transpose(d, rng, "f32", TRANSPOSE_CASES)),
+        ("convolution f64", lambda d: check_conv(d, rng, "f64", CONV_CASES)),
+        ("transposed_convolution f64", lambda d: check_transpose(d, rng, "f64", TRANSPOSE_CASES)),
+        ("convolution f32", lambda d: check_conv(d, rng, "f32", CONV_CASES)),
+        ("transposed_convolution f32", lambda d: check_transpose(d, rng, "f32", TRANSPOSE_CASES)),
         ("integer inputs", lambda d: check_exact(d, rng)),
     ]
     with tempfile.TemporaryDirectory(prefix="spar_check_conv_") as workdir:

@@ -631,7 +631,7 @@ def check_unary(dump, rng, dtype):
 def check_bce(dump, rng, dtype):
     u = unit_roundoff(dtype)
     big = 700.0 if dtype == "f64" else 80.0
-    g = Group(f"binary_cross_entropy_with_logits {dtype} at logits +-1000, +-{big:g}, +-100, +-30 "
+    g = Group(f"binary_cross_entropy_from_logits {dtype} at logits +-1000, +-{big:g}, +-100, +-30 "
               f"with targets 0, 0.3, 1, and its gradients",
               "reference -(t scipy.special.log_expit(z) + (1-t) log_expit(-z)); the engine's "
               "softplus(z) - t z subtracts terms of size |z|: |error| <= 16u (softplus(z) + "
@@ -642,7 +642,7 @@ def check_bce(dump, rng, dtype):
     z = as_dtype(z, dtype)
     t = as_dtype(t, dtype)
     w = as_dtype(rng.standard_normal(z.shape), dtype)
-    y, gz, gt = dump.run(dtype, "binary_cross_entropy_with_logits", [z, t], w)
+    y, gz, gt = dump.run(dtype, "binary_cross_entropy_from_logits", [z, t], w)
     ref = -(t * special.log_expit(z) + (1 - t) * special.log_expit(-z))
     step = 8 * subnormal_step(dtype)  # softplus(-100) = 3.7e-44 is subnormal in float32
     g.compare("value", y, ref, 16 * u * (np.logaddexp(0.0, z) + np.abs(t * z)) + step)
@@ -654,7 +654,7 @@ def check_bce(dump, rng, dtype):
 
 def check_softmax_cross_entropy(dump, rng, dtype):
     u = unit_roundoff(dtype)
-    g = Group(f"softmax_cross_entropy {dtype} (one-hot and soft targets; logits up to +-1000; "
+    g = Group(f"class_cross_entropy {dtype} (one-hot and soft targets; logits up to +-1000; "
               f"last and first axis) and its gradients",
               "reference -sum t scipy.special.log_softmax(z); |error| <= sum |t|(2e + "
               "4(K+4)u(|lse| + |z|)), e the log_sum_exp bound; d/dz = w((sum t) softmax - t), "
@@ -673,7 +673,7 @@ def check_softmax_cross_entropy(dump, rng, dtype):
         log_p = special.log_softmax(z, axis=ax)
         p = special.softmax(z, axis=ax)
         w = as_dtype(rng.standard_normal(np.delete(z.shape, ax % z.ndim)), dtype)
-        y, gz, gt = dump.run(dtype, "softmax_cross_entropy", [z, t], w, (ax,))
+        y, gz, gt = dump.run(dtype, "class_cross_entropy", [z, t], w, (ax,))
         tag = f"{z.shape} axis={ax}"
         term_err = 2 * e + 4 * (k + 4) * u * (np.abs(lse) + np.abs(z))
         g.compare(f"value {tag}", y, -np.sum(t * log_p, axis=ax),

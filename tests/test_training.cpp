@@ -2,32 +2,31 @@
 // straight; the reference architectures produce the shapes their recipes promise.
 #include <catch2/catch.hpp>
 
-#include "recipes/trainer.h"
+#include "recipes/training.h"
 #include "tests/support.h"
 
 using namespace spar;
 
 namespace {
 
-std::unique_ptr<Trainer> ring_trainer(uint64_t seed,
-                                      Objective objective = Objective::kNonSaturating,
-                                      double penalty = 0) {
+std::unique_ptr<TrainingRun> ring_trainer(uint64_t seed,
+                                          Objective objective = Objective::kNonSaturating,
+                                          double penalty = 0) {
   Rng init(seed, derive_stream(seed, "initialisation"));
   MlpPairOptions mlp;
   mlp.width = 32;
   mlp.depth = 2;
-  TrainerOptions options;
+  TrainingOptions options;
   options.batch = 32;
   options.seed = seed;
   options.objective = objective;
   options.gradient_penalty = penalty;
-  return std::make_unique<Trainer>(make_mlp_pair(mlp, init),
-                                   std::make_unique<MixtureSource>(ring_of_8(), seed), options);
+  return std::make_unique<TrainingRun>(make_mlp_pair(mlp, init),
+                                       std::make_unique<MixtureSource>(ring_of_8(), seed), options);
 }
 
-void check_same_generators(Trainer& a, Trainer& b) {
-  const auto pa = a.pair().generator->named_parameters(),
-             pb = b.pair().generator->named_parameters();
+void check_same_generators(TrainingRun& a, TrainingRun& b) {
+  const auto pa = a.pair().generator->all_parameters(), pb = b.pair().generator->all_parameters();
   REQUIRE(pa.size() == pb.size());
   for (size_t i = 0; i < pa.size(); ++i) {
     INFO(pa[i].name);
@@ -43,8 +42,8 @@ TEST_CASE("two runs with the same seed give bit-identical generators", "[trainer
   auto a = ring_trainer(3), b = ring_trainer(3), c = ring_trainer(4);
   for (int i = 0; i < 30; ++i) a->step(), b->step(), c->step();
   check_same_generators(*a, *b);
-  CHECK_FALSE(testing::same_bits(*a->pair().generator->named_parameters()[0].tensor,
-                                 *c->pair().generator->named_parameters()[0].tensor));
+  CHECK_FALSE(testing::same_bits(*a->pair().generator->all_parameters()[0].tensor,
+                                 *c->pair().generator->all_parameters()[0].tensor));
 }
 
 TEST_CASE("30 steps straight equal 15 steps, save, load into a new trainer, 15 more", "[trainer]") {
@@ -73,8 +72,8 @@ TEST_CASE("a saved state refuses another architecture, naming the tensor", "[tra
   MlpPairOptions wider;
   wider.width = 64;
   wider.depth = 2;
-  Trainer other(make_mlp_pair(wider, init), std::make_unique<MixtureSource>(ring_of_8(), 1),
-                TrainerOptions{});
+  TrainingRun other(make_mlp_pair(wider, init), std::make_unique<MixtureSource>(ring_of_8(), 1),
+                    TrainingOptions{});
   std::string message;
   CHECK(testing::error_kind_of([&] { other.load(archive); }, &message) ==
         ErrorKind::kCorruptCheckpoint);
@@ -94,11 +93,10 @@ TEST_CASE("DCGAN-style pairs make and judge images of 28, 32 and 64 pixels",
       GanPair pair = make_dcgan_pair(o, rng);
       Context<float> eval(nullptr, false);
       NoRecordScope no_record;
-      const Var<float> images =
-          pair.generator->forward(Var<float>(rng.normal<float>({3, 16})), eval);
+      const Var<float> images = pair.generator->run(Var<float>(rng.normal<float>({3, 16})), eval);
       INFO(size << " px, " << channels << " channels");
       CHECK(images.shape() == Shape{3, channels, size, size});
-      CHECK(pair.critic->forward(images, eval).shape() == Shape{3, 1});
+      CHECK(pair.critic->run(images, eval).shape() == Shape{3, 1});
       float largest = 0;
       for (float v : images.value().to_vector()) largest = std::max(largest, std::abs(v));
       CHECK(largest <= 1.0f);  // tanh output

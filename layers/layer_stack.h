@@ -1,8 +1,8 @@
-// Sequential<T>: runs named layers in order, lists and names all their parameters and
-// buffers, and saves and loads them through an Archive.
+// LayerStack<T>: runs named layers in order, lists and names all their parameters and
+// state tensors, and saves and loads them through an Archive.
 //
-// Names are hierarchical: a layer added as "conv1" to a Sequential reported under prefix
-// "critic" owns "critic.conv1.weight". A Sequential is itself a Layer, so models nest.
+// Names are hierarchical: a layer added as "conv1" to a LayerStack reported under prefix
+// "critic" owns "critic.conv1.weight". A LayerStack is itself a Layer, so models nest.
 // Training versus evaluation is chosen per step by the Context (layer.h).
 // Thread safety: as for layers (one thread at a time).
 #pragma once
@@ -13,9 +13,9 @@
 namespace spar {
 
 template <class T>
-class Sequential final : public Layer<T> {
+class LayerStack final : public Layer<T> {
  public:
-  Sequential() = default;
+  LayerStack() = default;
   // Appends `layer` under `name` (unique within this container; raises kBadArgument otherwise).
   // Returns the layer for further set-up.
   Layer<T>& add(const std::string& name, std::unique_ptr<Layer<T>> layer);
@@ -24,16 +24,16 @@ class Sequential final : public Layer<T> {
     return static_cast<L&>(add(name, std::make_unique<L>(std::forward<Args>(args)...)));
   }
 
-  Var<T> forward(const Var<T>& x, Context<T>& ctx) override;
-  void parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
-  void buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  Var<T> run(const Var<T>& x, Context<T>& ctx) override;
+  void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
+  void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) override;
   std::string describe() const override;
 
-  std::vector<NamedTensor<T>> named_parameters(const std::string& prefix = "");
-  std::vector<NamedTensor<T>> named_buffers(const std::string& prefix = "");
+  std::vector<NamedTensor<T>> all_parameters(const std::string& prefix = "");
+  std::vector<NamedTensor<T>> all_state(const std::string& prefix = "");
   size_t size() const { return layers_.size(); }
 
-  // Writes every parameter and buffer as a tensor record named "<prefix>.<name>".
+  // Writes every parameter and state tensor as a tensor record named "<prefix>.<name>".
   void save(Archive& archive, const std::string& prefix = "");
   // Reads them back. Raises kCorruptCheckpoint naming the tensor when one is missing or has
   // another shape (a checkpoint from another architecture); nothing is changed in that case.
@@ -43,7 +43,7 @@ class Sequential final : public Layer<T> {
   std::vector<std::pair<std::string, std::unique_ptr<Layer<T>>>> layers_;
 };
 
-extern template class Sequential<float>;
-extern template class Sequential<double>;
+extern template class LayerStack<float>;
+extern template class LayerStack<double>;
 
 }  // namespace spar

@@ -1,4 +1,4 @@
-// Trainer: the adversarial training loop for one generator-critic pair.
+// TrainingRun: the adversarial training loop for one generator-critic pair.
 //
 // One step() is one generator step preceded by `critic_steps` critic steps (Goodfellow et al.
 // 2014, Algorithm 1, with k = critic_steps), each on a fresh batch of data and of latent
@@ -47,7 +47,7 @@ class MixtureSource final : public DataSource {
   Rng rng_;
 };
 
-struct TrainerOptions {
+struct TrainingOptions {
   Objective objective = Objective::kNonSaturating;
   LeastSquaresTargets least_squares;  // used by Objective::kLeastSquares only
   double gradient_penalty = 0;        // λ of the gradient penalty (Gulrajani et al.: 10); 0 off
@@ -68,9 +68,9 @@ struct StepReport {
   double real_score = 0, fake_score = 0;
 };
 
-class Trainer {
+class TrainingRun {
  public:
-  Trainer(GanPair pair, std::unique_ptr<DataSource> data, const TrainerOptions& options);
+  TrainingRun(GanPair pair, std::unique_ptr<DataSource> data, const TrainingOptions& options);
 
   StepReport step();
   int64_t steps_done() const { return steps_; }
@@ -95,7 +95,7 @@ class Trainer {
 
   GanPair pair_;
   std::unique_ptr<DataSource> data_;
-  TrainerOptions options_;
+  TrainingOptions options_;
   std::vector<NamedTensor<float>> generator_params_, critic_params_;
   std::vector<Tensor<float>>
       average_;  // the generator's weight average, parallel to generator_params_

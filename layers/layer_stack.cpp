@@ -1,11 +1,11 @@
-#include "layers/sequential.h"
+#include "layers/layer_stack.h"
 
 #include "engine/error.h"
 
 namespace spar {
 
 template <class T>
-Layer<T>& Sequential<T>::add(const std::string& name, std::unique_ptr<Layer<T>> layer) {
+Layer<T>& LayerStack<T>::add(const std::string& name, std::unique_ptr<Layer<T>> layer) {
   if (name.empty() || name.find('.') != std::string::npos)
     raise(ErrorKind::kBadArgument,
           "sequential: layer name '" + name + "' must be non-empty and free of dots");
@@ -17,24 +17,25 @@ Layer<T>& Sequential<T>::add(const std::string& name, std::unique_ptr<Layer<T>> 
 }
 
 template <class T>
-Var<T> Sequential<T>::forward(const Var<T>& x, Context<T>& ctx) {
+Var<T> LayerStack<T>::run(const Var<T>& x, Context<T>& ctx) {
   Var<T> y = x;
-  for (auto& entry : layers_) y = entry.second->forward(y, ctx);
+  for (auto& entry : layers_) y = entry.second->run(y, ctx);
   return y;
 }
 
 template <class T>
-void Sequential<T>::parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  for (auto& entry : layers_) entry.second->parameters(join_name(prefix, entry.first), out);
+void LayerStack<T>::collect_parameters(const std::string& prefix,
+                                       std::vector<NamedTensor<T>>& out) {
+  for (auto& entry : layers_) entry.second->collect_parameters(join_name(prefix, entry.first), out);
 }
 
 template <class T>
-void Sequential<T>::buffers(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  for (auto& entry : layers_) entry.second->buffers(join_name(prefix, entry.first), out);
+void LayerStack<T>::collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
+  for (auto& entry : layers_) entry.second->collect_state(join_name(prefix, entry.first), out);
 }
 
 template <class T>
-std::string Sequential<T>::describe() const {
+std::string LayerStack<T>::describe() const {
   std::string s;
   for (const auto& entry : layers_)
     s += (s.empty() ? "" : "\n") + entry.first + ": " + entry.second->describe();
@@ -42,29 +43,29 @@ std::string Sequential<T>::describe() const {
 }
 
 template <class T>
-std::vector<NamedTensor<T>> Sequential<T>::named_parameters(const std::string& prefix) {
+std::vector<NamedTensor<T>> LayerStack<T>::all_parameters(const std::string& prefix) {
   std::vector<NamedTensor<T>> out;
-  parameters(prefix, out);
+  collect_parameters(prefix, out);
   return out;
 }
 
 template <class T>
-std::vector<NamedTensor<T>> Sequential<T>::named_buffers(const std::string& prefix) {
+std::vector<NamedTensor<T>> LayerStack<T>::all_state(const std::string& prefix) {
   std::vector<NamedTensor<T>> out;
-  buffers(prefix, out);
+  collect_state(prefix, out);
   return out;
 }
 
 template <class T>
-void Sequential<T>::save(Archive& archive, const std::string& prefix) {
-  for (const NamedTensor<T>& p : named_parameters(prefix)) archive.put(p.name, *p.tensor);
-  for (const NamedTensor<T>& b : named_buffers(prefix)) archive.put(b.name, *b.tensor);
+void LayerStack<T>::save(Archive& archive, const std::string& prefix) {
+  for (const NamedTensor<T>& p : all_parameters(prefix)) archive.put(p.name, *p.tensor);
+  for (const NamedTensor<T>& b : all_state(prefix)) archive.put(b.name, *b.tensor);
 }
 
 template <class T>
-void Sequential<T>::load(const Archive& archive, const std::string& prefix) {
-  std::vector<NamedTensor<T>> all = named_parameters(prefix);
-  for (const NamedTensor<T>& b : named_buffers(prefix)) all.push_back(b);
+void LayerStack<T>::load(const Archive& archive, const std::string& prefix) {
+  std::vector<NamedTensor<T>> all = all_parameters(prefix);
+  for (const NamedTensor<T>& b : all_state(prefix)) all.push_back(b);
   std::vector<Tensor<T>> loaded;  // checked first, assigned after: all or nothing
   for (const NamedTensor<T>& t : all) {
     if (!archive.contains(t.name))
@@ -80,7 +81,7 @@ void Sequential<T>::load(const Archive& archive, const std::string& prefix) {
   for (size_t i = 0; i < all.size(); ++i) *all[i].tensor = loaded[i];
 }
 
-template class Sequential<float>;
-template class Sequential<double>;
+template class LayerStack<float>;
+template class LayerStack<double>;
 
 }  // namespace spar

@@ -1,4 +1,4 @@
-#include "recipes/trainer.h"
+#include "recipes/training.h"
 
 #include <cmath>
 
@@ -37,7 +37,8 @@ void MixtureSource::load(const Archive& archive, const std::string& prefix) {
   load_rng(archive, prefix + ".stream", rng_);
 }
 
-Trainer::Trainer(GanPair pair, std::unique_ptr<DataSource> data, const TrainerOptions& options)
+TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
+                         const TrainingOptions& options)
     : pair_(std::move(pair)),
       data_(std::move(data)),
       options_(options),
@@ -52,28 +53,28 @@ Trainer::Trainer(GanPair pair, std::unique_ptr<DataSource> data, const TrainerOp
     raise(ErrorKind::kBadRecipe, "trainer: the data's samples have shape " +
                                      data_->sample_shape().str() + " but the generator makes " +
                                      pair_.sample_shape.str());
-  generator_params_ = pair_.generator->named_parameters("generator");
-  critic_params_ = pair_.critic->named_parameters("critic");
+  generator_params_ = pair_.generator->all_parameters("generator");
+  critic_params_ = pair_.critic->all_parameters("critic");
   for (const NamedTensor<float>& p : generator_params_) average_.push_back(p.tensor->clone());
 }
 
-double Trainer::critic_step() {
+double TrainingRun::critic_step() {
   const int64_t n = options_.batch;
   Tensor<float> fake;
   {
     NoRecordScope constant;  // the critic step does not train the generator
     Context<float> g(nullptr, true, &dropout_rng_);
-    fake = pair_.generator->forward(Var<float>(draw_latent(n, latent_rng_)), g).value();
+    fake = pair_.generator->run(Var<float>(draw_latent(n, latent_rng_)), g).value();
   }
   const Tensor<float> real = data_->next_batch(n);
   tape_.clear();
   Context<float> ctx(&tape_, true, &dropout_rng_);
-  Sequential<float>& critic = *pair_.critic;
-  const Var<float> real_scores = critic.forward(Var<float>(real), ctx);
-  const Var<float> fake_scores = critic.forward(Var<float>(fake), ctx);
+  LayerStack<float>& critic = *pair_.critic;
+  const Var<float> real_scores = critic.run(Var<float>(real), ctx);
+  const Var<float> fake_scores = critic.run(Var<float>(fake), ctx);
   Var<float> loss =
       discriminator_loss(options_.objective, real_scores, fake_scores, options_.least_squares);
-  const Critic<float> as_function = [&](const Var<float>& x) { return critic.forward(x, ctx); };
+  const Critic<float> as_function = [&](const Var<float>& x) { return critic.run(x, ctx); };
   if (options_.gradient_penalty > 0)
     loss = add(loss, gradient_penalty(as_function, real, fake, tape_, penalty_rng_,
                                       options_.gradient_penalty));
@@ -84,14 +85,14 @@ double Trainer::critic_step() {
   return static_cast<double>(loss.item());
 }
 
-StepReport Trainer::step() {
+StepReport TrainingRun::step() {
   for (int k = 0; k < options_.critic_steps; ++k) last_.critic_loss = critic_step();
   tape_.clear();
   Context<float> ctx(&tape_, true, &dropout_rng_);
   const Var<float> fake =
-      pair_.generator->forward(Var<float>(draw_latent(options_.batch, latent_rng_)), ctx);
+      pair_.generator->run(Var<float>(draw_latent(options_.batch, latent_rng_)), ctx);
   const Var<float> loss =
-      generator_loss(options_.objective, pair_.critic->forward(fake, ctx), options_.least_squares);
+      generator_loss(options_.objective, pair_.critic->run(fake, ctx), options_.least_squares);
   const double value = loss.item();
   if (!std::isfinite(value))
     raise(ErrorKind::kNumericalFailure, "step " + std::to_string(steps_ + 1) +
@@ -106,7 +107,7 @@ StepReport Trainer::step() {
   return last_;
 }
 
-void Trainer::average_generator() {
+void TrainingRun::average_generator() {
   const double beta = options_.average_decay;
   for (size_t i = 0; i < average_.size(); ++i)
     average_[i] = beta > 0 ? kernels::binary(
@@ -115,20 +116,20 @@ void Trainer::average_generator() {
                            : *generator_params_[i].tensor;
 }
 
-Tensor<float> Trainer::generate(const Tensor<float>& z) {
+Tensor<float> TrainingRun::generate(const Tensor<float>& z) {
   // Swap the averaged weights in for one evaluation step, then back.
   for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
   Tensor<float> out;
   {
     NoRecordScope sampling;
     Context<float> eval(nullptr, false);
-    out = pair_.generator->forward(Var<float>(z), eval).value();
+    out = pair_.generator->run(Var<float>(z), eval).value();
   }
   for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
   return out;
 }
 
-void Trainer::save(Archive& archive) {
+void TrainingRun::save(Archive& archive) {
   pair_.generator->save(archive, "generator");
   pair_.critic->save(archive, "critic");
   for (size_t i = 0; i < average_.size(); ++i)
@@ -142,7 +143,7 @@ void Trainer::save(Archive& archive) {
   archive.put_int("step", steps_);
 }
 
-void Trainer::load(const Archive& archive) {
+void TrainingRun::load(const Archive& archive) {
   pair_.generator->load(archive, "generator");
   pair_.critic->load(archive, "critic");
   for (size_t i = 0; i < average_.size(); ++i)
