@@ -6,6 +6,7 @@
 #include "cli/output.h"
 #include "engine/gradient_check.h"
 #include "layers/gradient_cases.h"
+#include "recipes/gradient_cases.h"
 
 namespace spar {
 namespace cli {
@@ -20,6 +21,7 @@ int run(const Options& o) {
   std::vector<GradientCheckResult> results;
   std::vector<GradientCase> cases = operation_gradient_cases();
   for (GradientCase& c : layer_gradient_cases()) cases.push_back(std::move(c));
+  for (GradientCase& c : objective_gradient_cases()) cases.push_back(std::move(c));
   for (const GradientCase& c : cases) {
     if (!o.only.empty() && c.name.find(o.only) == std::string::npos) continue;
     results.push_back(check_first_order(c));
@@ -61,12 +63,12 @@ int run(const Options& o) {
 
 Subcommand add_check_gradients(CLI::App& parent) {
   auto options = std::make_shared<Options>();
-  CLI::App* app =
-      parent.add_subcommand("check-gradients",
-                            "Verify the gradient of every operation and layer, first and second "
-                            "order, against central differences in float64.\n"
-                            "Exits 1 if any check fails.\n"
-                            "Example: spar check-gradients --only matmul");
+  CLI::App* app = parent.add_subcommand(
+      "check-gradients",
+      "Verify the gradient of every operation, layer and objective, first and second "
+      "order, against central differences in float64.\n"
+      "Exits 1 if any check fails.\n"
+      "Example: spar check-gradients --only matmul");
   app->add_flag("--json", options->json, "Print the results as JSON instead of a table");
   app->add_option("--only", options->only, "Run only the checks whose name contains this text");
   return {app, [options] { return run(*options); }};

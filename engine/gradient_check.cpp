@@ -15,8 +15,9 @@ std::string shapes_of(const std::vector<Tensor<double>>& xs) {
   return s;
 }
 
+// The inputs are constants, so nothing the function computes from them is recorded (a
+// function may still record on a tape of its own, as the gradient penalties do).
 double value_at(const ScalarFunction& f, const std::vector<Tensor<double>>& xs) {
-  NoRecordScope no_record;
   std::vector<Var<double>> vars;
   for (const Tensor<double>& x : xs) vars.emplace_back(x);
   return f(vars).item();

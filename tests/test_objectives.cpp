@@ -3,6 +3,7 @@
 #include <catch2/catch.hpp>
 #include <cmath>
 
+#include "recipes/gradient_cases.h"
 #include "recipes/objectives.h"
 #include "tests/support.h"
 
@@ -157,4 +158,15 @@ TEST_CASE("R1 equals (γ/2)·E‖∇D(x)‖² by finite differences (Mescheder e
     expected += critic.squared_gradient_norm(x) / 2;
   }
   CHECK(r1 == Approx(5 * expected).epsilon(1e-7));
+}
+
+TEST_CASE(
+    "every objective's losses and both penalties pass first- and second-order gradient checks",
+    "[objectives][gradient]") {
+  for (const GradientCase& c : objective_gradient_cases()) {
+    const GradientCheckResult first = check_first_order(c), second = check_second_order(c);
+    INFO(c.name << ": first " << first.max_rel_error << ", second " << second.max_rel_error);
+    CHECK(first.max_rel_error <= 1e-6);
+    CHECK(second.max_rel_error <= 1e-4);
+  }
 }
