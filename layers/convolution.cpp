@@ -33,31 +33,27 @@ template <class T>
 Convolution<T>::Convolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
-  weight_ = initial_weight<T>({out, in, options.kernel_h, options.kernel_w}, in * area, out * area,
-                              options.init, rng);
-  if (options.bias) bias_ = Tensor<T>::zeros({out});
-  if (options.spectral_norm) normaliser_ = SpectralNormaliser<T>(out, in * area, rng);
+  params_ = WeightAndBias<T>(initial_weight<T>({out, in, options.kernel_h, options.kernel_w},
+                                               in * area, out * area, options.init, rng),
+                             options.bias ? out : 0, options.spectral_norm, out, in * area, rng);
 }
 
 template <class T>
 Var<T> Convolution<T>::run(const Var<T>& x, Context<T>& ctx) {
   require_channels(x.shape(), in_, describe());
-  Var<T> w = ctx.use(weight_);
-  if (normaliser_.enabled()) w = normaliser_.apply(w, ctx);
-  Var<T> y = convolution(x, w, options_.geometry);
-  return options_.bias ? add_channel_bias(y, bias_, out_, ctx) : y;
+  const Var<T> y = convolution(x, params_.weight_for(ctx), options_.geometry);
+  return params_.has_bias() ? add_channel_bias(y, params_.bias, out_, ctx) : y;
 }
 
 template <class T>
 void Convolution<T>::collect_parameters(const std::string& prefix,
                                         std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "weight"), &weight_});
-  if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
+  params_.collect_parameters(prefix, out);
 }
 
 template <class T>
 void Convolution<T>::collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  normaliser_.collect_state(prefix, out);
+  params_.collect_state(prefix, out);
 }
 
 template <class T>
@@ -71,10 +67,9 @@ TransposedConvolution<T>::TransposedConvolution(int64_t in, int64_t out, const C
                                                 Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
-  weight_ = initial_weight<T>({in, out, options.kernel_h, options.kernel_w}, in * area, out * area,
-                              options.init, rng);
-  if (options.bias) bias_ = Tensor<T>::zeros({out});
-  if (options.spectral_norm) normaliser_ = SpectralNormaliser<T>(in, out * area, rng);
+  params_ = WeightAndBias<T>(initial_weight<T>({in, out, options.kernel_h, options.kernel_w},
+                                               in * area, out * area, options.init, rng),
+                             options.bias ? out : 0, options.spectral_norm, in, out * area, rng);
 }
 
 template <class T>
@@ -87,23 +82,20 @@ Var<T> TransposedConvolution<T>::run(const Var<T>& x, Context<T>& ctx) {
   const int64_t out_w =
       conv_transpose_output_extent(x.shape()[3], options_.kernel_w, g.stride_w, g.pad_w,
                                    options_.output_pad_w, "transposed_convolution");
-  Var<T> w = ctx.use(weight_);
-  if (normaliser_.enabled()) w = normaliser_.apply(w, ctx);
-  Var<T> y = transposed_convolution(x, w, g, out_h, out_w);
-  return options_.bias ? add_channel_bias(y, bias_, out_, ctx) : y;
+  const Var<T> y = transposed_convolution(x, params_.weight_for(ctx), g, out_h, out_w);
+  return params_.has_bias() ? add_channel_bias(y, params_.bias, out_, ctx) : y;
 }
 
 template <class T>
 void TransposedConvolution<T>::collect_parameters(const std::string& prefix,
                                                   std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "weight"), &weight_});
-  if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
+  params_.collect_parameters(prefix, out);
 }
 
 template <class T>
 void TransposedConvolution<T>::collect_state(const std::string& prefix,
                                              std::vector<NamedTensor<T>>& out) {
-  normaliser_.collect_state(prefix, out);
+  params_.collect_state(prefix, out);
 }
 
 template <class T>

@@ -32,8 +32,7 @@ class Convolution final : public Layer<T> {
  private:
   int64_t in_, out_;
   ConvOptions options_;
-  Tensor<T> weight_, bias_;
-  SpectralNormaliser<T> normaliser_;
+  WeightAndBias<T> params_;
 };
 
 // The transposed convolution: [N, in, H, W] → [N, out, s(H−1) + a + KH − 2p, ...];
@@ -51,8 +50,7 @@ class TransposedConvolution final : public Layer<T> {
  private:
   int64_t in_, out_;
   ConvOptions options_;
-  Tensor<T> weight_, bias_;
-  SpectralNormaliser<T> normaliser_;
+  WeightAndBias<T> params_;
 };
 
 // Mean over non-overlapping factor × factor windows: [N, C, H, W] → [N, C, H/f, W/f]

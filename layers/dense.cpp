@@ -12,9 +12,8 @@ Dense<T>::Dense(int64_t in, int64_t out, const DenseOptions& options, Rng& rng)
   if (in < 1 || out < 1)
     raise(ErrorKind::kBadArgument,
           "dense: sizes " + std::to_string(in) + "→" + std::to_string(out) + " must be positive");
-  weight_ = initial_weight<T>({in, out}, in, out, options.init, rng);
-  if (options.bias) bias_ = Tensor<T>::zeros({out});
-  if (options.spectral_norm) normaliser_ = SpectralNormaliser<T>(in, out, rng);
+  params_ = WeightAndBias<T>(initial_weight<T>({in, out}, in, out, options.init, rng),
+                             options.bias ? out : 0, options.spectral_norm, in, out, rng);
 }
 
 template <class T>
@@ -23,21 +22,18 @@ Var<T> Dense<T>::run(const Var<T>& x, Context<T>& ctx) {
     raise(ErrorKind::kBadShape, "dense " + std::to_string(in_) + "→" + std::to_string(out_) +
                                     ": input has shape " + x.shape().str() + ", expected [N, " +
                                     std::to_string(in_) + "]");
-  Var<T> w = ctx.use(weight_);
-  if (normaliser_.enabled()) w = normaliser_.apply(w, ctx);
-  Var<T> y = matmul(x, w);
-  return options_.bias ? add(y, ctx.use(bias_)) : y;
+  const Var<T> y = matmul(x, params_.weight_for(ctx));
+  return params_.has_bias() ? add(y, ctx.use(params_.bias)) : y;
 }
 
 template <class T>
 void Dense<T>::collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "weight"), &weight_});
-  if (options_.bias) out.push_back({join_name(prefix, "bias"), &bias_});
+  params_.collect_parameters(prefix, out);
 }
 
 template <class T>
 void Dense<T>::collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
-  normaliser_.collect_state(prefix, out);
+  params_.collect_state(prefix, out);
 }
 
 template <class T>

@@ -27,8 +27,7 @@ class Dense final : public Layer<T> {
  private:
   int64_t in_, out_;
   DenseOptions options_;
-  Tensor<T> weight_, bias_;
-  SpectralNormaliser<T> normaliser_;
+  WeightAndBias<T> params_;
 };
 
 // A learned vector per class, for class-conditional models: the input is one-hot rows

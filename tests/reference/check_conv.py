@@ -49,13 +49,12 @@ check fails, 2 for bad usage or when the dump program fails.
 """
 import os
 import sys
-import tempfile
 
 import numpy as np
 from scipy import signal
 
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
-from check_ops import U64, Dump, DumpError, Group, as_dtype, gamma, unit_roundoff  # noqa: E402
+from check_ops import U64, Group, as_dtype, gamma, run_checks, unit_roundoff  # noqa: E402
 
 SEED = 20240702
 
@@ -321,38 +320,14 @@ def check_reference_sizes(rng):
 
 
 def main(argv):
-    if len(argv) != 2:
-        print("check_conv.py: usage: check_conv.py PATH_TO_SPAR_REFERENCE_DUMP", file=sys.stderr)
-        return 2
-    program = argv[1]
-    if not os.access(program, os.X_OK):
-        print(f"check_conv.py: {program}: not an executable file", file=sys.stderr)
-        return 2
-    rng = np.random.default_rng(SEED)
-    passed = failed = 0
-    checks = [
+    return run_checks("check_conv.py", argv, lambda rng: [
         ("reference sizes", lambda d: check_reference_sizes(rng)),
         ("convolution f64", lambda d: check_conv(d, rng, "f64", CONV_CASES)),
         ("transposed_convolution f64", lambda d: check_transpose(d, rng, "f64", TRANSPOSE_CASES)),
         ("convolution f32", lambda d: check_conv(d, rng, "f32", CONV_CASES)),
         ("transposed_convolution f32", lambda d: check_transpose(d, rng, "f32", TRANSPOSE_CASES)),
         ("integer inputs", lambda d: check_exact(d, rng)),
-    ]
-    with tempfile.TemporaryDirectory(prefix="spar_check_conv_") as workdir:
-        dump = Dump(program, workdir)
-        for name, check in checks:
-            try:
-                group = check(dump)
-            except DumpError as e:
-                print(f"FAIL {name}: {e}")
-                failed += 1
-                continue
-            if group.report():
-                passed += 1
-            else:
-                failed += 1
-    print(f"{passed} passed, {failed} failed")
-    return 0 if failed == 0 else 1
+    ], seed=SEED)
 
 
 if __name__ == "__main__":

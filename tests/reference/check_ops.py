@@ -688,26 +688,25 @@ def check_softmax_cross_entropy(dump, rng, dtype):
     return g
 
 
-def main(argv):
+def run_checks(script, argv, make_checks, seed=SEED):
+    """The shared driver of the reference scripts: checks the command line, runs each named
+    check (a function of the Dump returning a Group or a list of Groups), prints one line per
+    group and a final "N passed, M failed" line, and returns the exit code."""
     if len(argv) != 2:
-        print("check_ops.py: usage: check_ops.py PATH_TO_SPAR_REFERENCE_DUMP", file=sys.stderr)
+        print(f"{script}: usage: {script} PATH_TO_SPAR_REFERENCE_DUMP", file=sys.stderr)
         return 2
     program = argv[1]
     if not os.access(program, os.X_OK):
-        print(f"check_ops.py: {program}: not an executable file", file=sys.stderr)
+        print(f"{script}: {program}: not an executable file", file=sys.stderr)
         return 2
-    rng = np.random.default_rng(SEED)
     passed = failed = 0
-    with tempfile.TemporaryDirectory(prefix="spar_check_ops_") as workdir:
+    with tempfile.TemporaryDirectory(prefix=f"spar_{script.split('.')[0]}_") as workdir:
         dump = Dump(program, workdir)
-        groups = (check_matmul, check_sums, check_max, check_log_sum_exp,
-                  check_log_sum_exp_special, check_softmax, check_broadcast, check_shapes,
-                  check_unary, check_bce, check_softmax_cross_entropy)
-        for dtype, check in [(d, c) for d in ("f64", "f32") for c in groups]:
+        for name, check in make_checks(np.random.default_rng(seed)):
             try:
-                result = check(dump, rng, dtype)
+                result = check(dump)
             except DumpError as e:
-                print(f"FAIL {check.__name__} {dtype}: {e}")
+                print(f"FAIL {name}: {e}")
                 failed += 1
                 continue
             for group in result if isinstance(result, list) else [result]:
@@ -717,6 +716,15 @@ def main(argv):
                     failed += 1
     print(f"{passed} passed, {failed} failed")
     return 0 if failed == 0 else 1
+
+
+def main(argv):
+    groups = (check_matmul, check_sums, check_max, check_log_sum_exp,
+              check_log_sum_exp_special, check_softmax, check_broadcast, check_shapes,
+              check_unary, check_bce, check_softmax_cross_entropy)
+    return run_checks("check_ops.py", argv, lambda rng: [
+        (f"{check.__name__} {dtype}", lambda d, c=check, t=dtype: c(d, rng, t))
+        for dtype in ("f64", "f32") for check in groups])
 
 
 if __name__ == "__main__":
