@@ -326,7 +326,7 @@ std::string Archive::to_bytes() const {
   return out;
 }
 
-void Archive::write_file(const std::string& path) const {
+void write_file_atomically(const std::string& path, const void* data, size_t size) {
   const std::string tmp = path + ".tmp-" + std::to_string(static_cast<long>(::getpid()));
   auto fail = [&path](const std::string& what, int err) {
     raise(ErrorKind::kIo, path + ": " + what + ": " + std::strerror(err));
@@ -334,9 +334,8 @@ void Archive::write_file(const std::string& path) const {
   std::FILE* f = std::fopen(tmp.c_str(), "wb");
   if (!f) fail("cannot create temporary file '" + tmp + "'", errno);
   try {
-    emit([&](const void* p, size_t n) {
-      if (std::fwrite(p, 1, n, f) != n) fail("cannot write '" + tmp + "'", errno);
-    });
+    if (size > 0 && std::fwrite(data, 1, size, f) != size)
+      fail("cannot write '" + tmp + "'", errno);
     if (std::fflush(f) != 0) fail("cannot write '" + tmp + "'", errno);
     if (::fsync(::fileno(f)) != 0) fail("cannot sync '" + tmp + "'", errno);
     std::FILE* closing = f;
@@ -352,13 +351,18 @@ void Archive::write_file(const std::string& path) const {
   // Make the rename itself durable. Best effort: some file systems refuse fsync on folders,
   // and the new file is complete and in place either way.
   std::string folder = ".";
-  size_t slash = path.find_last_of('/');
+  const size_t slash = path.find_last_of('/');
   if (slash != std::string::npos) folder = slash == 0 ? "/" : path.substr(0, slash);
-  int dir = ::open(folder.c_str(), O_RDONLY | O_DIRECTORY);
+  const int dir = ::open(folder.c_str(), O_RDONLY | O_DIRECTORY);
   if (dir >= 0) {
     (void)::fsync(dir);
     ::close(dir);
   }
+}
+
+void Archive::write_file(const std::string& path) const {
+  const std::string bytes = to_bytes();
+  write_file_atomically(path, bytes.data(), bytes.size());
 }
 
 // ---- reading ------------------------------------------------------------------------------
@@ -388,9 +392,10 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
   archive.source_ = label;
   Reader in(bytes, label);
 
+  // The magic first, so a file of another kind is named as such even when it is short.
+  if (bytes.size() < 8 || std::memcmp(bytes.data(), kMagic, 8) != 0)
+    corrupt("not a spar archive (it does not start with the 8 bytes SPARARCH)");
   in.need(detail::kHeaderBytes, "the header");
-  if (std::memcmp(in.at(0), kMagic, 8) != 0)
-    corrupt("not a spar archive (the first 8 bytes are wrong)");
   in.skip(8);
   const uint32_t version = in.read_le<uint32_t>("the format version");
   if (version != kFormatVersion)

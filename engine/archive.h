@@ -73,11 +73,7 @@ class Archive {
   std::string to_bytes() const;
   static Archive from_bytes(const std::string& bytes, const std::string& label);
 
-  // Atomic write: the bytes go to "<path>.tmp-<pid>" in the same folder, are flushed and
-  // fsync'ed, then renamed over `path`; the folder is then fsync'ed (best effort). On any
-  // failure the temporary file is removed, an existing file at `path` is left as it was,
-  // and kIo "<path>: <what>: <strerror>" is raised. Two threads of one process must not
-  // write the same path at the same time (they would share the temporary name).
+  // to_bytes() written with write_file_atomically (below).
   void write_file(const std::string& path) const;
   // Raises kIo when the file cannot be opened or read, kCorruptCheckpoint when it does not
   // pass the reader's checks.
@@ -105,6 +101,14 @@ class Archive {
 
 extern template Tensor<float> Archive::tensor<float>(const std::string&) const;
 extern template Tensor<double> Archive::tensor<double>(const std::string&) const;
+
+// Writes `size` bytes to `path` atomically: they go to "<path>.tmp-<pid>" in the same folder,
+// are flushed and fsync'ed, then renamed over `path`; the folder is then fsync'ed (best
+// effort). On any failure the temporary file is removed, an existing file at `path` is left
+// as it was, and kIo "<path>: <what>: <strerror>" is raised. Two threads of one process must
+// not write the same path at the same time (they would share the temporary name). Every file
+// spar writes goes through here: checkpoints, pictures, plots, logs rewritten on resume.
+void write_file_atomically(const std::string& path, const void* data, size_t size);
 
 // CRC-32 as in IEEE 802.3 (reflected polynomial 0xEDB88320, initial value and final xor
 // 0xFFFFFFFF). Pass the previous result as `crc` to continue over more bytes:
