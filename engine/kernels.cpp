@@ -2,6 +2,7 @@
 
 #include <Eigen/Core>
 #include <algorithm>
+#include <atomic>
 #include <cmath>
 #include <cstring>
 #include <limits>
@@ -12,6 +13,16 @@
 
 namespace spar {
 namespace kernels {
+
+namespace {
+std::atomic<uint64_t> flops_done{0};
+}  // namespace
+uint64_t product_flops() {
+  return flops_done.load(std::memory_order_relaxed);
+}
+void add_product_flops(int64_t flops) {
+  flops_done.fetch_add(static_cast<uint64_t>(flops), std::memory_order_relaxed);
+}
 namespace {
 
 // ---- elementwise maps -------------------------------------------------------------------
@@ -417,6 +428,7 @@ Tensor<T> matrix_product(const Tensor<T>& a, const Tensor<T>& b, bool ta, bool t
     raise(ErrorKind::kBadShape, std::string("matmul: inner extents differ in ") + a.shape().str() +
                                     (ta ? "ᵀ" : "") + " · " + b.shape().str() + (tb ? "ᵀ" : ""));
   detail::ensure_eigen_single_threaded();
+  add_product_flops(2 * m * n * ka);
   using Matrix = Eigen::Matrix<T, Eigen::Dynamic, Eigen::Dynamic, Eigen::RowMajor>;
   using Map = Eigen::Map<const Matrix>;
   Tensor<T> c = Tensor<T>::uninitialised(Shape{m, n});

@@ -69,6 +69,13 @@ Tensor<T> max_along(const Tensor<T>& x, int axis, Tensor<T>* first_max);
 template <class T>
 Tensor<T> log_sum_exp_along(const Tensor<T>& x, int axis);
 
+// Floating-point operations done so far in this process by matrix_product and the three
+// convolution kernels: 2·m·n·k per product, a convolution counting as its im2col product
+// (2·N·O·OH·OW·C·KH·KW). A relaxed atomic added to once per call; benchmarks read it to
+// express a training step's speed as a fraction of raw GEMM speed.
+uint64_t product_flops();
+void add_product_flops(int64_t flops);  // for kernels that run products themselves
+
 // op(a)·op(b) for rank-2 a and b, op = transpose when the flag is set; Eigen's GEMM over
 // fixed row panels of the result (parallel.h).
 template <class T>

@@ -69,6 +69,10 @@ struct ConvShape {
   int64_t positions() const { return oh * ow; }
 };
 
+void count_flops(const ConvShape& s) {
+  add_product_flops(2 * s.n * s.o * s.positions() * s.ckk());
+}
+
 std::string dims(const Shape& s) {
   return s.str();
 }
@@ -371,6 +375,7 @@ Tensor<T> convolution(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry
   const ConvShape s = conv_shape(x.shape(), w.shape(), g, "convolution", [&] {
     return "input " + dims(x.shape()) + ", weight " + dims(w.shape());
   });
+  count_flops(s);
   Tensor<T> y = Tensor<T>::uninitialised({s.n, s.o, s.oh, s.ow});
   const int64_t p = s.positions();
   const Phases f(s);
@@ -425,6 +430,7 @@ Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const C
               ".." + std::to_string(hi_w) + " wide (output padding below the stride)");
   const ConvShape s = conv_shape(Shape{z.dim(0), w.dim(1), out_h, out_w}, w.shape(), g,
                                  "transposed_convolution", operands);
+  count_flops(s);
   Tensor<T> x = Tensor<T>::zeros({s.n, s.c, s.h, s.w});
   const int64_t p = s.positions();
   const Phases f(s);
@@ -472,6 +478,7 @@ Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
                                     " with a " + extents(kernel_h, kernel_w) + " kernel, " +
                                     geometry_text(g) + ", which give " +
                                     Shape{s.n, s.o, s.oh, s.ow}.str());
+  count_flops(s);
   const int64_t p = s.positions();
   const int64_t size = group_size(s), groups = (s.n + size - 1) / size;
   const Phases f(s);
