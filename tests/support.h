@@ -1,8 +1,11 @@
 // Helpers shared by the tests.
 #pragma once
 
+#include <unistd.h>
+
 #include <catch2/catch.hpp>
 #include <cstring>
+#include <filesystem>
 #include <functional>
 #include <string>
 
@@ -33,6 +36,39 @@ bool same_bits(const Tensor<T>& a, const Tensor<T>& b) {
   return a.shape() == b.shape() &&
          std::memcmp(a.data(), b.data(), static_cast<size_t>(a.numel()) * sizeof(T)) == 0;
 }
+
+// A scratch folder for one test case under the system's temporary folder, removed with its
+// contents when the object goes.
+class ScratchDir {
+ public:
+  ScratchDir() {
+    path_ = std::filesystem::temp_directory_path() /
+            ("spar_test_" + std::to_string(::getpid()) + "_" + std::to_string(counter_++));
+    std::filesystem::remove_all(path_);
+    std::filesystem::create_directories(path_);
+  }
+  ~ScratchDir() {
+    std::error_code ignored;
+    std::filesystem::remove_all(path_, ignored);
+  }
+  ScratchDir(const ScratchDir&) = delete;
+  ScratchDir& operator=(const ScratchDir&) = delete;
+  // The path of `name` inside the folder; its parent folders are created.
+  std::string file(const std::string& name) const {
+    const std::filesystem::path p = path_ / name;
+    std::filesystem::create_directories(p.parent_path());
+    return p.string();
+  }
+  // The path of folder `name` inside the folder, created.
+  std::string folder(const std::string& name) const {
+    std::filesystem::create_directories(path_ / name);
+    return (path_ / name).string();
+  }
+
+ private:
+  static inline int counter_ = 0;
+  std::filesystem::path path_;
+};
 
 }  // namespace testing
 }  // namespace spar

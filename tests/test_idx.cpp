@@ -19,28 +19,9 @@ namespace {
 
 using Bytes = std::vector<unsigned char>;
 using testing::error_kind_of;
+using testing::ScratchDir;
 
 const std::string kFashionDir = "/usr/share/datasets/fashion-mnist/";
-
-// A scratch folder for one test case, removed with its contents at the end.
-class ScratchDir {
- public:
-  ScratchDir() {
-    path_ = std::filesystem::temp_directory_path() /
-            ("spar_test_idx_" + std::to_string(::getpid()) + "_" + std::to_string(counter_++));
-    std::filesystem::remove_all(path_);
-    std::filesystem::create_directories(path_);
-  }
-  ~ScratchDir() {
-    std::error_code ignored;
-    std::filesystem::remove_all(path_, ignored);
-  }
-  std::string file(const std::string& name) const { return (path_ / name).string(); }
-
- private:
-  static inline int counter_ = 0;
-  std::filesystem::path path_;
-};
 
 std::string write_plain(const std::string& path, const Bytes& bytes) {
   std::ofstream out(path, std::ios::binary);
