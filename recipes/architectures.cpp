@@ -12,21 +12,51 @@ using S = LayerStack<float>;
 std::string numbered(const char* base, int i) {
   return base + std::to_string(i);
 }
+// x [N, F] or [N, C, H, W] with one_hot(labels) appended along axis 1: as F+K features, or
+// as C+K channels, channel C+k being 1 everywhere for samples of class k.
+Var<float> with_classes(const Var<float>& x, const std::vector<int64_t>& labels, int64_t classes,
+                        const char* who) {
+  if (classes == 0) {
+    if (!labels.empty())
+      raise(ErrorKind::kBadArgument, std::string(who) + ": labels given to an unconditional model");
+    return x;
+  }
+  const Shape& s = x.shape();
+  if (static_cast<int64_t>(labels.size()) != s[0])
+    raise(ErrorKind::kBadArgument, std::string(who) + ": " + std::to_string(labels.size()) +
+                                       " labels for " + std::to_string(s[0]) + " samples");
+  Var<float> codes(one_hot<float>(labels, classes));
+  if (s.rank() == 4)
+    codes =
+        broadcast_to(reshape(codes, Shape{s[0], classes, 1, 1}), Shape{s[0], classes, s[2], s[3]});
+  return concat(std::vector<Var<float>>{x, codes}, 1);
+}
+
 }  // namespace
 
+Var<float> run_generator(GanPair& pair, const Var<float>& z, const std::vector<int64_t>& labels,
+                         Context<float>& ctx) {
+  return pair.generator->run(with_classes(z, labels, pair.classes, "generator"), ctx);
+}
+
+Var<float> run_critic(GanPair& pair, const Var<float>& x, const std::vector<int64_t>& labels,
+                      Context<float>& ctx) {
+  return pair.critic->run(with_classes(x, labels, pair.classes, "critic"), ctx);
+}
+
 GanPair make_mlp_pair(const MlpPairOptions& o, Rng& rng) {
-  GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent, Shape{o.data}};
+  GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent, Shape{o.data}, o.classes};
   DenseOptions plain;
   DenseOptions critic_dense = plain;
   critic_dense.spectral_norm = o.spectral_norm;
-  int64_t in = o.latent;
+  int64_t in = o.latent + o.classes;
   for (int i = 1; i <= o.depth; ++i) {
     pair.generator->emplace<Dense<float>>(numbered("dense", i), in, o.width, plain, rng);
     pair.generator->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kRelu);
     in = o.width;
   }
   pair.generator->emplace<Dense<float>>("out", in, o.data, plain, rng);
-  in = o.data;
+  in = o.data + o.classes;
   for (int i = 1; i <= o.depth; ++i) {
     pair.critic->emplace<Dense<float>>(numbered("dense", i), in, o.width, critic_dense, rng);
     pair.critic->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kLeakyRelu,
@@ -52,7 +82,7 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
   if (o.channels != 1 && o.channels != 3)
     raise(ErrorKind::kBadRecipe, "channels " + std::to_string(o.channels) + " is not 1 or 3");
   GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent,
-               Shape{o.channels, o.image_size, o.image_size}};
+               Shape{o.channels, o.image_size, o.image_size}, o.classes};
   ConvOptions up;
   up.kernel_h = up.kernel_w = 4;
   up.geometry = {2, 2, 1, 1};
@@ -60,7 +90,8 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
   const int64_t top = o.width << (doublings - 1);  // channels of the smallest map
 
   S& g = *pair.generator;
-  g.emplace<Dense<float>>("project", o.latent, top * start * start, DenseOptions{false}, rng);
+  g.emplace<Dense<float>>("project", o.latent + o.classes, top * start * start, DenseOptions{false},
+                          rng);
   g.emplace<PerSampleReshape<float>>("map", Shape{top, start, start});
   g.emplace<BatchNormalisation<float>>("norm0", top);
   g.emplace<Nonlinearity<float>>("act0", NonlinearityKind::kRelu);
@@ -82,7 +113,7 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
   S& d = *pair.critic;
   ConvOptions down = up;
   down.spectral_norm = o.spectral_norm;
-  c = o.channels;
+  c = o.channels + o.classes;
   int64_t size = o.image_size;
   for (int i = 1; i <= doublings; ++i) {
     const int64_t next = o.width << (i - 1);

@@ -14,8 +14,15 @@ std::vector<Tensor<float>*> tensors_of(const std::vector<NamedTensor<float>>& na
   return out;
 }
 
-double mean_of(const Var<float>& v) {
-  return kernels::sum_all(v.value()) / static_cast<double>(v.numel());
+// The mean of the critic's outputs as StepReport gives them: D's probability σ(score) for the
+// logistic objectives, the raw score for the others.
+double mean_output(Objective objective, const Var<float>& scores) {
+  const bool logistic = objective == Objective::kMinimax || objective == Objective::kNonSaturating;
+  double sum = 0;
+  const float* v = scores.value().data();
+  for (int64_t i = 0; i < scores.numel(); ++i)
+    sum += logistic ? 1 / (1 + std::exp(-static_cast<double>(v[i]))) : v[i];
+  return sum / static_cast<double>(scores.numel());
 }
 
 void save_rng(Archive& archive, const std::string& name, const Rng& rng) {
@@ -49,6 +56,11 @@ TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
       penalty_rng_(options.seed, derive_stream(options.seed, "penalty")) {
   if (options.critic_steps < 1 || options.batch < 2)
     raise(ErrorKind::kBadRecipe, "trainer: critic steps must be ≥ 1 and the batch ≥ 2");
+  if (data_->classes() != pair_.classes)
+    raise(ErrorKind::kBadRecipe, "trainer: the data has " + std::to_string(data_->classes()) +
+                                     " classes but the model is built for " +
+                                     std::to_string(pair_.classes) +
+                                     (pair_.classes == 0 ? " (an unconditional model)" : ""));
   if (data_->sample_shape() != pair_.sample_shape)
     raise(ErrorKind::kBadRecipe, "trainer: the data's samples have shape " +
                                      data_->sample_shape().str() + " but the generator makes " +
@@ -58,30 +70,42 @@ TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
   for (const NamedTensor<float>& p : generator_params_) average_.push_back(p.tensor->clone());
 }
 
+std::vector<int64_t> TrainingRun::draw_labels(int64_t n) {
+  std::vector<int64_t> labels;
+  for (int64_t i = 0; i < n && pair_.classes > 0; ++i)
+    labels.push_back(static_cast<int64_t>(latent_rng_.below(static_cast<uint64_t>(pair_.classes))));
+  return labels;
+}
+
 double TrainingRun::critic_step() {
   const int64_t n = options_.batch;
+  const std::vector<int64_t> fake_labels = draw_labels(n);
   Tensor<float> fake;
   {
     NoRecordScope constant;  // the critic step does not train the generator
     Context<float> g(nullptr, true, &dropout_rng_);
-    fake = pair_.generator->run(Var<float>(draw_latent(n, latent_rng_)), g).value();
+    fake = run_generator(pair_, Var<float>(draw_latent(n, latent_rng_)), fake_labels, g).value();
   }
-  const Tensor<float> real = data_->next_batch(n);
+  const Batch real = data_->next_batch(n);
   tape_.clear();
   Context<float> ctx(&tape_, true, &dropout_rng_);
-  LayerStack<float>& critic = *pair_.critic;
-  const Var<float> real_scores = critic.run(Var<float>(real), ctx);
-  const Var<float> fake_scores = critic.run(Var<float>(fake), ctx);
+  const Var<float> real_scores = run_critic(pair_, Var<float>(real.samples), real.labels, ctx);
+  const Var<float> fake_scores = run_critic(pair_, Var<float>(fake), fake_labels, ctx);
   Var<float> loss =
       discriminator_loss(options_.objective, real_scores, fake_scores, options_.least_squares);
-  const Critic<float> as_function = [&](const Var<float>& x) { return critic.run(x, ctx); };
+  // The penalties differentiate the critic with respect to its input at fixed labels; the
+  // interpolates of the gradient penalty keep the real samples' labels.
+  const Critic<float> on_real_labels = [&](const Var<float>& x) {
+    return run_critic(pair_, x, real.labels, ctx);
+  };
   if (options_.gradient_penalty > 0)
-    loss = add(loss, gradient_penalty(as_function, real, fake, tape_, penalty_rng_,
+    loss = add(loss, gradient_penalty(on_real_labels, real.samples, fake, tape_, penalty_rng_,
                                       options_.gradient_penalty));
-  if (options_.r1 > 0) loss = add(loss, r1_penalty(as_function, real, tape_, options_.r1));
+  if (options_.r1 > 0)
+    loss = add(loss, r1_penalty(on_real_labels, real.samples, tape_, options_.r1));
   critic_adam_.step(tensors_of(critic_params_), parameter_gradients(loss, ctx, critic_params_));
-  last_.real_score = mean_of(real_scores);
-  last_.fake_score = mean_of(fake_scores);
+  last_.real_score = mean_output(options_.objective, real_scores);
+  last_.fake_score = mean_output(options_.objective, fake_scores);
   return static_cast<double>(loss.item());
 }
 
@@ -89,10 +113,15 @@ StepReport TrainingRun::step() {
   for (int k = 0; k < options_.critic_steps; ++k) last_.critic_loss = critic_step();
   tape_.clear();
   Context<float> ctx(&tape_, true, &dropout_rng_);
+  const std::vector<int64_t> labels = draw_labels(options_.batch);
   const Var<float> fake =
-      pair_.generator->run(Var<float>(draw_latent(options_.batch, latent_rng_)), ctx);
-  const Var<float> loss =
-      generator_loss(options_.objective, pair_.critic->run(fake, ctx), options_.least_squares);
+      run_generator(pair_, Var<float>(draw_latent(options_.batch, latent_rng_)), labels, ctx);
+  // The critic judges as a constant function here: its parameters are not recorded, so the
+  // backward pass computes gradients along the generated samples only, not for the critic's
+  // weights, which this step does not train.
+  Context<float> judge(nullptr, true, &dropout_rng_);
+  const Var<float> loss = generator_loss(options_.objective, run_critic(pair_, fake, labels, judge),
+                                         options_.least_squares);
   const double value = loss.item();
   if (!std::isfinite(value))
     raise(ErrorKind::kNumericalFailure, "step " + std::to_string(steps_ + 1) +
@@ -108,7 +137,10 @@ StepReport TrainingRun::step() {
 }
 
 void TrainingRun::average_generator() {
-  const double beta = options_.average_decay;
+  // Warm-up (common practice): early on the decay is (1 + t)/(10 + t) if that is smaller, so
+  // the average forgets the random initial weights within tens of steps, not thousands.
+  const double t = static_cast<double>(steps_);
+  const double beta = std::min(options_.average_decay, (1 + t) / (10 + t));
   for (size_t i = 0; i < average_.size(); ++i)
     average_[i] = beta > 0 ? kernels::binary(
                                  kernels::Binary::kAdd, kernels::scale(average_[i], beta),
@@ -116,14 +148,20 @@ void TrainingRun::average_generator() {
                            : *generator_params_[i].tensor;
 }
 
-Tensor<float> TrainingRun::generate(const Tensor<float>& z) {
+void TrainingRun::save_generator(Archive& archive) {
+  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+  pair_.generator->save(archive, "generator");
+  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+}
+
+Tensor<float> TrainingRun::generate(const Tensor<float>& z, const std::vector<int64_t>& labels) {
   // Swap the averaged weights in for one evaluation step, then back.
   for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
   Tensor<float> out;
   {
     NoRecordScope sampling;
     Context<float> eval(nullptr, false);
-    out = pair_.generator->run(Var<float>(z), eval).value();
+    out = run_generator(pair_, Var<float>(z), labels, eval).value();
   }
   for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
   return out;

@@ -10,6 +10,10 @@
 // "dropout", "penalty"; data sources keep their own), so the same seed gives the same bits,
 // and save()/load() carry every stream's position: 100 steps, save, load, 100 more equals
 // 200 steps straight.
+//
+// A class-conditional pair (GanPair::classes > 0) needs labelled data with that many classes.
+// Real samples are judged with their own labels; generated ones are made for labels drawn
+// uniformly from the "latent" stream and judged with those (Mirza and Osindero 2014).
 // Thread safety: one thread at a time; kernels inside use the engine's threads.
 #pragma once
 
@@ -17,27 +21,18 @@
 
 #include "engine/optimizer.h"
 #include "recipes/architectures.h"
+#include "recipes/datasets.h"
 #include "recipes/mixtures.h"
 #include "recipes/objectives.h"
 
 namespace spar {
 
-// Where training data comes from. next_batch advances a position that save/load carry.
-class DataSource {
- public:
-  virtual ~DataSource() = default;
-  virtual Shape sample_shape() const = 0;
-  virtual Tensor<float> next_batch(int64_t n) = 0;
-  virtual void save(Archive& archive, const std::string& prefix) const = 0;
-  virtual void load(const Archive& archive, const std::string& prefix) = 0;
-};
-
-// Endless fresh samples of a built-in 2-D mixture (mixtures.h).
+// Endless fresh samples of a built-in 2-D mixture (mixtures.h), unlabelled.
 class MixtureSource final : public DataSource {
  public:
   MixtureSource(Mixture mixture, uint64_t seed);
   Shape sample_shape() const override { return {2}; }
-  Tensor<float> next_batch(int64_t n) override { return sample_mixture(mixture_, n, rng_); }
+  Batch next_batch(int64_t n) override { return {sample_mixture(mixture_, n, rng_), {}}; }
   void save(Archive& archive, const std::string& prefix) const override;
   void load(const Archive& archive, const std::string& prefix) override;
   const Mixture& mixture() const { return mixture_; }
@@ -56,12 +51,15 @@ struct TrainingOptions {
   int64_t batch = 64;                 // samples per batch, real and generated alike
   AdamOptions generator_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};  // DCGAN's settings
   AdamOptions critic_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};
-  double average_decay = 0.999;  // β of the generator's weight average; 0 off
+  double average_decay = 0.999;  // β of the generator's weight average; 0 off. At generator
+                                 // step t the decay used is min(β, (1 + t)/(10 + t)).
   uint64_t seed = 1;
 };
 
-// What one step measured: the losses, and the critic's mean raw score on real and generated
-// samples (for the minimax family, σ of a score is D's probability that the sample is real).
+// What one step measured: the losses, and the critic's mean output on real and generated
+// samples of the last critic step: for minimax and non-saturating, D's probability that a
+// sample is real, σ(score) (Goodfellow et al.'s D(x) and D(G(z))); for the others, the raw
+// score.
 struct StepReport {
   int64_t step = 0;
   double critic_loss = 0, generator_loss = 0;
@@ -77,7 +75,8 @@ class TrainingRun {
 
   // Generated samples from the averaged generator (evaluation step) for latent vectors z
   // [n, latent]; draw_latent gives z ~ N(0, I).
-  Tensor<float> generate(const Tensor<float>& z);
+  // For a conditional pair, `labels` gives each sample's class (n of them); otherwise empty.
+  Tensor<float> generate(const Tensor<float>& z, const std::vector<int64_t>& labels = {});
   Tensor<float> draw_latent(int64_t n, Rng& rng) const {
     return rng.normal<float>({n, pair_.latent});
   }
@@ -86,11 +85,15 @@ class TrainingRun {
   void save(Archive& archive);
   // Raises kCorruptCheckpoint naming what is missing or does not fit this architecture.
   void load(const Archive& archive);
+  // What sampling needs: the generator with its averaged weights, as "generator.*" records
+  // (LayerStack::save), loadable by a generator of the same architecture.
+  void save_generator(Archive& archive);
 
   GanPair& pair() { return pair_; }
 
  private:
   double critic_step();
+  std::vector<int64_t> draw_labels(int64_t n);
   void average_generator();
 
   GanPair pair_;
