@@ -5,6 +5,7 @@
 #pragma once
 
 #include <functional>
+#include <vector>
 
 namespace CLI {
 class App;
@@ -20,6 +21,8 @@ struct Subcommand {
 
 Subcommand add_check_gradients(CLI::App& parent);
 Subcommand add_bench(CLI::App& parent);
+std::vector<Subcommand> add_training_commands(CLI::App& parent);  // demo, train, resume
+std::vector<Subcommand> add_run_commands(CLI::App& parent);       // sample, evaluate, inspect
 
 }  // namespace cli
 }  // namespace spar

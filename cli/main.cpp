@@ -26,10 +26,10 @@ int main(int argc, char** argv) {
   CLI::App app{"spar: train small generative adversarial networks on a CPU"};
   app.require_subcommand(1);
   app.set_version_flag("--version", "spar 0.1.0");
-  const std::vector<spar::cli::Subcommand> subcommands = {
-      spar::cli::add_check_gradients(app),
-      spar::cli::add_bench(app),
-  };
+  std::vector<spar::cli::Subcommand> subcommands = spar::cli::add_training_commands(app);
+  for (const spar::cli::Subcommand& s : spar::cli::add_run_commands(app)) subcommands.push_back(s);
+  subcommands.push_back(spar::cli::add_check_gradients(app));
+  subcommands.push_back(spar::cli::add_bench(app));
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

@@ -80,5 +80,18 @@ std::string format_number(double v, int significant) {
   return buf;
 }
 
+std::string format_duration(double seconds) {
+  if (!(seconds >= 0) || seconds > 1e8) return "?";
+  const long long s = static_cast<long long>(seconds + 0.5);
+  char buf[32];
+  if (s < 60)
+    std::snprintf(buf, sizeof buf, "%llds", s);
+  else if (s < 3600)
+    std::snprintf(buf, sizeof buf, "%lldm%02llds", s / 60, s % 60);
+  else
+    std::snprintf(buf, sizeof buf, "%lldh%02lldm", s / 3600, s / 60 % 60);
+  return buf;
+}
+
 }  // namespace cli
 }  // namespace spar

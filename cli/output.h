@@ -1,4 +1,4 @@
-// Small helpers the subcommands share: table and JSON printing.
+// Small helpers the subcommands share: table, JSON, number and duration printing.
 #pragma once
 
 #include <string>
@@ -17,6 +17,8 @@ std::string json_string(const std::string& s);
 std::string json_number(double v);
 // Formats a number for a table, e.g. "3.2e-09" or "187.4".
 std::string format_number(double v, int significant = 3);
+// A duration for people: "42s", "3m05s", "2h10m"; "?" when unknown.
+std::string format_duration(double seconds);
 
 }  // namespace cli
 }  // namespace spar
