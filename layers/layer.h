@@ -38,6 +38,12 @@ class Context {
       : tape_(tape), training_(training), rng_(rng) {}
 
   bool training() const { return training_; }
+  // A statistics pass (with training false): layers that keep running statistics (batch
+  // normalisation) normalise with this batch's statistics and replace their running statistics
+  // with them; nothing else changes. Used to fit the statistics to a generator's averaged
+  // weights before sampling from them.
+  void set_statistics_pass(bool on) { statistics_pass_ = on; }
+  bool statistics_pass() const { return statistics_pass_; }
   Tape<T>* tape() const { return tape_; }
   // The stream for random draws; raises kBadArgument naming `who` when none was given.
   Rng& rng(const char* who);
@@ -53,6 +59,7 @@ class Context {
  private:
   Tape<T>* tape_;
   bool training_;
+  bool statistics_pass_ = false;
   Rng* rng_;
   std::map<const Tensor<T>*, Var<T>> bound_;
 };

@@ -27,13 +27,13 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
   const Shape stat = s.rank() == 2 ? Shape{1, channels_} : Shape{1, channels_, 1, 1};
   const int64_t m = s.numel() / channels_;  // values per channel
   Var<T> mean, variance;
-  if (ctx.training()) {
+  if (ctx.training() || ctx.statistics_pass()) {
     if (m < 2)
       raise(ErrorKind::kBadShape,
             describe() + ": a training batch needs two or more values per channel, got " + s.str());
     mean = scale(sum_into_shape(x, stat), 1.0 / static_cast<double>(m));
     variance = scale(sum_into_shape(square(subtract(x, mean)), stat), 1.0 / static_cast<double>(m));
-    const double r = options_.running_rate,
+    const double r = ctx.statistics_pass() ? 1.0 : options_.running_rate,
                  unbiased = static_cast<double>(m) / static_cast<double>(m - 1);
     const Tensor<T> batch_mean = mean.value().reshape({channels_}),
                     batch_variance = variance.value().reshape({channels_});

@@ -18,8 +18,9 @@ struct BatchNormalisationOptions {
 // x̂ = (x − μ_B) / √(σ²_B + ε), y = γ·x̂ + β (Ioffe & Szegedy 2015, Algorithm 1), with μ_B and
 // σ²_B the batch mean and (biased) variance. Training steps also update the running mean and
 // the running unbiased variance m/(m−1)·σ²_B (Algorithm 2); evaluation steps normalise with
-// those. Accepts [N, C] and [N, C, H, W]. Parameters "scale", "shift"; state
-// "running_mean", "running_variance".
+// those. A statistics pass (Context::set_statistics_pass) normalises with the batch's
+// statistics and replaces the running ones with them (r = 1). Accepts [N, C] and [N, C, H, W].
+// Parameters "scale", "shift"; state "running_mean", "running_variance".
 template <class T>
 class BatchNormalisation final : public Layer<T> {
  public:

@@ -127,6 +127,31 @@ TEST_CASE("dropout keeps the expectation and is the identity in evaluation steps
   CHECK_THROWS_WITH(drop.run(x, no_stream), Catch::Contains("dropout"));
 }
 
+TEST_CASE("a statistics pass replaces batch normalisation's running statistics", "[layers]") {
+  // Ioffe & Szegedy 2015, Algorithms 1 and 2: the batch mean, and the unbiased variance
+  // m/(m − 1)·σ²_B kept for inference. Two channels of a [3, 2] batch, by hand.
+  BatchNormalisation<double> norm(2);
+  const Var<double> x(Tensor<double>::from_values({3, 2}, {1, 10, 2, 20, 6, 30}));
+  std::vector<NamedTensor<double>> state;
+  norm.collect_state("", state);
+  REQUIRE(state.size() == 2);
+  Context<double> train(nullptr, true);
+  norm.run(x, train);  // a training step moves the statistics by 0.1 of the way only
+  CHECK((*state[0].tensor).to_vector()[0] == Approx(0.1 * 3));
+  Context<double> pass(nullptr, false);
+  pass.set_statistics_pass(true);
+  const Tensor<double> y = norm.run(x, pass).value();
+  CHECK((*state[0].tensor).to_vector() == std::vector<double>{3, 20});
+  // Channel 0: values 1, 2, 6, mean 3, squared deviations 4 + 1 + 9 = 14, unbiased 14/2.
+  CHECK((*state[1].tensor).to_vector()[0] == Approx(7));
+  CHECK((*state[1].tensor).to_vector()[1] == Approx(100));  // 100 + 0 + 100 over 2
+  // The pass normalises with the batch's own statistics: (1 − 3)/√(14/3 + ε).
+  CHECK(y.to_vector()[0] == Approx(-2 / std::sqrt(14.0 / 3 + 1e-5)));
+  // Evaluation afterwards uses exactly those statistics.
+  Context<double> eval(nullptr, false);
+  CHECK(norm.run(x, eval).value().to_vector()[0] == Approx(-2 / std::sqrt(7 + 1e-5)));
+}
+
 TEST_CASE("layer shape errors name the layer and the shapes", "[layers]") {
   Rng rng(5, 1);
   Dense<float> dense(3, 4, DenseOptions{}, rng);
