@@ -53,7 +53,8 @@ TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
       critic_adam_(options.critic_optimiser),
       latent_rng_(options.seed, derive_stream(options.seed, "latent")),
       dropout_rng_(options.seed, derive_stream(options.seed, "dropout")),
-      penalty_rng_(options.seed, derive_stream(options.seed, "penalty")) {
+      penalty_rng_(options.seed, derive_stream(options.seed, "penalty")),
+      seed_(options.seed) {
   if (options.critic_steps < 1 || options.batch < 2)
     raise(ErrorKind::kBadRecipe, "trainer: critic steps must be ≥ 1 and the batch ≥ 2");
   if (data_->classes() != pair_.classes)
@@ -148,22 +149,40 @@ void TrainingRun::average_generator() {
                            : *generator_params_[i].tensor;
 }
 
-void TrainingRun::save_generator(Archive& archive) {
-  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
-  pair_.generator->save(archive, "generator");
+void TrainingRun::swap_average() {
   for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
 }
 
+void TrainingRun::fit_statistics_to_average() {
+  // 512 fixed latent vectors (and labels in turn): enough for per-channel means and
+  // variances, a fraction of a training step's work.
+  const int64_t n = 512;
+  Rng rng(seed_, derive_stream(seed_, "statistics"));
+  std::vector<int64_t> labels;
+  for (int64_t i = 0; i < n && pair_.classes > 0; ++i) labels.push_back(i % pair_.classes);
+  NoRecordScope fitting;
+  Context<float> pass(nullptr, false);
+  pass.set_statistics_pass(true);
+  run_generator(pair_, Var<float>(draw_latent(n, rng)), labels, pass);
+}
+
+void TrainingRun::save_generator(Archive& archive) {
+  swap_average();
+  fit_statistics_to_average();
+  pair_.generator->save(archive, "generator");
+  swap_average();
+}
+
 Tensor<float> TrainingRun::generate(const Tensor<float>& z, const std::vector<int64_t>& labels) {
-  // Swap the averaged weights in for one evaluation step, then back.
-  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+  swap_average();
+  fit_statistics_to_average();
   Tensor<float> out;
   {
     NoRecordScope sampling;
     Context<float> eval(nullptr, false);
     out = run_generator(pair_, Var<float>(z), labels, eval).value();
   }
-  for (size_t i = 0; i < average_.size(); ++i) std::swap(*generator_params_[i].tensor, average_[i]);
+  swap_average();
   return out;
 }
 

@@ -11,6 +11,12 @@
 // and save()/load() carry every stream's position: 100 steps, save, load, 100 more equals
 // 200 steps straight.
 //
+// Sampling uses the average in evaluation mode. The running statistics of the generator's
+// batch normalisation are refitted to the averaged weights first (one statistics pass over
+// a fixed batch of latent vectors), because statistics gathered while training describe the
+// live weights, not their average. They are used by nothing else, and the refit depends only
+// on the averaged weights, so it does not disturb an exact resume.
+//
 // A class-conditional pair (GanPair::classes > 0) needs labelled data with that many classes.
 // Real samples are judged with their own labels; generated ones are made for labels drawn
 // uniformly from the "latent" stream and judged with those (Mirza and Osindero 2014).
@@ -93,6 +99,8 @@ class TrainingRun {
 
  private:
   double critic_step();
+  void swap_average();
+  void fit_statistics_to_average();
   std::vector<int64_t> draw_labels(int64_t n);
   void average_generator();
 
@@ -104,6 +112,7 @@ class TrainingRun {
       average_;  // the generator's weight average, parallel to generator_params_
   Adam<float> generator_adam_, critic_adam_;
   Rng latent_rng_, dropout_rng_, penalty_rng_;
+  uint64_t seed_;
   Tape<float> tape_;
   int64_t steps_ = 0;
   StepReport last_;
