@@ -359,9 +359,13 @@ void Run::write_curves() {
     real.x.push_back(x), real.y.push_back(r.real_score);
     fake.x.push_back(x), fake.y.push_back(r.fake_score);
   }
+  const bool logistic = recipe_.objective == "minimax" || recipe_.objective == "non-saturating";
   const std::vector<PlotPanel> panels = {
       {"losses", "loss", {critic, generator}},
-      {"critic outputs (mean raw score)", "score", {real, fake}},
+      {logistic ? "critic outputs: mean D(x) and D(G(z)), the probability of \"real\""
+                : "critic outputs: mean score",
+       logistic ? "probability" : "score",
+       {real, fake}},
   };
   write_svg((fs::path(folder_) / "curves.svg").string(), line_chart_svg(panels, "generator step"));
 }
@@ -457,7 +461,8 @@ void write_samples_picture(const Recipe& r, const Tensor<float>& samples, int64_
     return;
   }
   Tensor<float> images = samples;
-  int64_t zoom = 1;
+  // Small images are enlarged (pixels repeated) to at least 64 pixels a side, to be seen.
+  int64_t zoom = samples.shape().rank() == 4 ? std::max<int64_t>(1, 64 / samples.shape()[3]) : 1;
   if (samples.shape().rank() == 2) {  // table rows, drawn as pictures when asked
     const int64_t features = samples.shape()[1];
     const int64_t w = r.picture_width;
@@ -466,7 +471,7 @@ void write_samples_picture(const Recipe& r, const Tensor<float>& samples, int64_
                                        " does not divide the " + std::to_string(features) +
                                        " features; samples of tables need a picture width");
     images = samples.reshape({samples.shape()[0], 1, features / w, w});
-    zoom = std::max<int64_t>(1, 32 / w);
+    zoom = std::max<int64_t>(1, 64 / w);
   }
   write_png(path, tile_pictures(images, columns, 2, zoom));
 }
