@@ -262,17 +262,18 @@ Run Run::start(const std::string& folder, const Recipe& recipe, bool force) {
   std::error_code error;
   if (fs::exists(folder) && !fs::is_directory(folder))
     raise(ErrorKind::kBadArgument, folder + ": exists and is not a folder");
-  if (fs::exists(folder) && !fs::is_empty(folder)) {
-    if (!force)
-      raise(ErrorKind::kBadArgument,
-            folder +
-                ": is not empty; choose another folder, or pass --force to replace the run "
-                "in it");
+  const bool occupied = fs::exists(folder) && !fs::is_empty(folder);
+  if (occupied && !force)
+    raise(ErrorKind::kBadArgument,
+          folder + ": is not empty; choose another folder, or pass --force to replace the run in it");
+  // Load the data and build the networks before touching the disk, so a recipe or data error
+  // leaves an earlier run in the folder as it was.
+  Run run(folder, recipe);
+  if (occupied) {
     for (const char* name : {"recipe.toml", "log.csv", "curves.svg", kStateFile, kGeneratorFile})
       fs::remove(fs::path(folder) / name, error);
     fs::remove_all(fs::path(folder) / "samples", error);
   }
-  Run run(folder, recipe);  // loads the data and builds the networks before touching disk
   fs::create_directories(fs::path(folder) / "samples", error);
   if (error) raise(ErrorKind::kIo, folder + ": cannot be created: " + error.message());
   write_text_atomically((fs::path(folder) / "recipe.toml").string(), to_toml(recipe));

@@ -68,6 +68,9 @@ expect_error "not a checkpoint" "typo.toml: not a spar archive" "$spar" inspect 
 # An existing run folder is not overwritten without --force.
 expect_error "non-empty output folder" "good: is not empty" "$spar" train ring8 --out good --steps 5
 cmp -s good/generator.spar reference.spar || { echo "FAIL: refused run changed good/"; failures=$((failures + 1)); }
+# Nor with --force when the new run's data cannot be read: the earlier run stays.
+expect_error "--force with missing data" "no-such-folder" "$spar" train missing.toml --out good --force
+cmp -s good/generator.spar reference.spar || { echo "FAIL: failed --force run changed good/"; failures=$((failures + 1)); }
 
 [ "$failures" -eq 0 ] && echo "all bad inputs refused cleanly"
 exit "$failures"
