@@ -19,7 +19,7 @@ while kill -0 "$pid" 2>/dev/null; do
   rss=$(awk '/^VmRSS/ {print $2}' /proc/$pid/status 2>/dev/null || true)
   hwm=$(awk '/^VmHWM/ {print $2}' /proc/$pid/status 2>/dev/null || true)
   [ -n "$hwm" ] && peak=$hwm
-  step=$(tail -n 1 "$scratch/run/log.csv" 2>/dev/null | cut -d, -f1)
+  step=$(tail -n 1 "$scratch/run/log.csv" 2>/dev/null | cut -d, -f1 || true)
   if [ -n "$rss" ] && [[ "$step" =~ ^[0-9]+$ ]] && [ "$step" -ge "$next" ]; then
     printf 'step %6d: resident %7.1f MiB\n' "$step" "$(calc "$rss / 1024")"
     next=$((next + 1000))
