@@ -189,6 +189,7 @@ struct InspectOptions {
 int run_inspect(const InspectOptions& o) {
   std::string path = o.file;
   if (fs::is_directory(path)) path = (fs::path(path) / "state.spar").string();
+  if (!fs::exists(path)) raise(ErrorKind::kBadArgument, path + ": does not exist");
   const Archive a = Archive::read_file(path);
   const auto text_of = [&](const char* name) {
     return a.contains(name) && a.kind(name) == RecordKind::kText ? a.text(name) : std::string();

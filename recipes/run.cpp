@@ -264,8 +264,9 @@ Run Run::start(const std::string& folder, const Recipe& recipe, bool force) {
     raise(ErrorKind::kBadArgument, folder + ": exists and is not a folder");
   const bool occupied = fs::exists(folder) && !fs::is_empty(folder);
   if (occupied && !force)
-    raise(ErrorKind::kBadArgument,
-          folder + ": is not empty; choose another folder, or pass --force to replace the run in it");
+    raise(
+        ErrorKind::kBadArgument,
+        folder + ": is not empty; choose another folder, or pass --force to replace the run in it");
   // Load the data and build the networks before touching the disk, so a recipe or data error
   // leaves an earlier run in the folder as it was.
   Run run(folder, recipe);
@@ -420,6 +421,9 @@ RunResult Run::train_until(int64_t total_steps, const std::atomic<bool>* stop,
 SavedGenerator load_generator(const std::string& folder_or_file) {
   std::string path = folder_or_file;
   if (fs::is_directory(path)) path = (fs::path(path) / kGeneratorFile).string();
+  if (!fs::exists(path))
+    raise(ErrorKind::kBadArgument,
+          path + ": does not exist (give a run folder or its " + kGeneratorFile + ")");
   const Archive a = Archive::read_file(path);
   if (!a.contains("kind") || a.kind("kind") != RecordKind::kText ||
       a.text("kind") != "spar generator")

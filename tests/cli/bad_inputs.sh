@@ -64,6 +64,9 @@ size=$(stat -c %s good/generator.spar)
 printf '\xff' | dd of=flipped/generator.spar bs=1 seek=$((size / 2)) conv=notrunc status=none
 expect_error "flipped bytes" "flipped/generator.spar" "$spar" inspect flipped/generator.spar
 expect_error "not a checkpoint" "typo.toml: not a spar archive" "$spar" inspect typo.toml
+mkdir -p not-a-run
+expect_error "folder without a generator" "not-a-run/generator.spar: does not exist" "$spar" sample not-a-run
+expect_error "missing checkpoint" "nothing.spar: does not exist" "$spar" inspect nothing.spar
 
 # An existing run folder is not overwritten without --force.
 expect_error "non-empty output folder" "good: is not empty" "$spar" train ring8 --out good --steps 5
