@@ -154,6 +154,10 @@ void TrainingRun::swap_average() {
 }
 
 void TrainingRun::fit_statistics_to_average() {
+  // The fit depends only on the averaged weights, which change only with a step: a picture
+  // and a checkpoint at the same step share one fit.
+  if (statistics_fitted_at_ == steps_) return;
+  statistics_fitted_at_ = steps_;
   // 512 fixed latent vectors (and labels in turn): enough for per-channel means and
   // variances, a fraction of a training step's work.
   const int64_t n = 512;
@@ -212,6 +216,7 @@ void TrainingRun::load(const Archive& archive) {
   load_rng(archive, "stream.penalty", penalty_rng_);
   data_->load(archive, "data");
   steps_ = archive.integer("step");
+  statistics_fitted_at_ = -1;  // the loaded statistics are the saved ones, not a fit
 }
 
 }  // namespace spar

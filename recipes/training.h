@@ -115,6 +115,7 @@ class TrainingRun {
   uint64_t seed_;
   Tape<float> tape_;
   int64_t steps_ = 0;
+  int64_t statistics_fitted_at_ = -1;  // the step whose average the statistics fit; -1 none
   StepReport last_;
 };
 
