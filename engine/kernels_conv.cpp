@@ -20,6 +20,7 @@
 #include <cstring>
 #include <functional>
 #include <string>
+#include <type_traits>
 #include <vector>
 
 #include "engine/error.h"
@@ -257,6 +258,37 @@ void col2im(const T* col, const ConvShape& s, const Phases& f, int64_t ld, int64
   }
 }
 
+// Calls f(std::integral_constant<int, W>()) with W = ow for the output widths of the shipped
+// architectures (28, 32 and 64-pixel DCGAN pairs: 4, 7, 8, 14, 16, 32), so that their row
+// copies are fixed-length vector moves; W = 0 (the width read at run time) otherwise.
+template <class F>
+void with_fixed_width(int64_t ow, F&& f) {
+  switch (ow) {
+    case 4:
+      return f(std::integral_constant<int, 4>());
+    case 7:
+      return f(std::integral_constant<int, 7>());
+    case 8:
+      return f(std::integral_constant<int, 8>());
+    case 14:
+      return f(std::integral_constant<int, 14>());
+    case 16:
+      return f(std::integral_constant<int, 16>());
+    case 32:
+      return f(std::integral_constant<int, 32>());
+    default:
+      return f(std::integral_constant<int, 0>());
+  }
+}
+
+// The same for the width stride: 1 and 2 fixed, others read at run time.
+template <class F>
+void with_fixed_stride(int64_t stride, F&& f) {
+  if (stride == 2) return f(std::integral_constant<int, 2>());
+  if (stride == 1) return f(std::integral_constant<int, 1>());
+  return f(std::integral_constant<int, 0>());
+}
+
 // Writes the columns of samples n0..n0+count-1 of x into `col` ([C·KH·KW, count·OH·OW]) through
 // `planes`.
 template <class T>
@@ -265,28 +297,11 @@ void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   for (int64_t i = 0; i < count; ++i) {
     const T* sample = x + (n0 + i) * chw;
-    if (s.g.stride_w == 2)
-      split_phases<2>(sample, s, f, planes);
-    else if (s.g.stride_w == 1)
-      split_phases<1>(sample, s, f, planes);
-    else
-      split_phases<0>(sample, s, f, planes);
-    switch (s.ow) {
-      case 4:
-        im2col<4>(planes, s, f, col, ld, i * p);
-        break;
-      case 8:
-        im2col<8>(planes, s, f, col, ld, i * p);
-        break;
-      case 16:
-        im2col<16>(planes, s, f, col, ld, i * p);
-        break;
-      case 32:
-        im2col<32>(planes, s, f, col, ld, i * p);
-        break;
-      default:
-        im2col<0>(planes, s, f, col, ld, i * p);
-    }
+    with_fixed_stride(s.g.stride_w, [&](auto stride) {
+      split_phases<decltype(stride)::value>(sample, s, f, planes);
+    });
+    with_fixed_width(
+        s.ow, [&](auto width) { im2col<decltype(width)::value>(planes, s, f, col, ld, i * p); });
   }
 }
 
@@ -297,29 +312,12 @@ void columns_to_samples(const T* col, const ConvShape& s, const Phases& f, int64
                         int64_t count, T* planes, T* x) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   for (int64_t i = 0; i < count; ++i) {
-    switch (s.ow) {
-      case 4:
-        col2im<4>(col, s, f, ld, i * p, planes);
-        break;
-      case 8:
-        col2im<8>(col, s, f, ld, i * p, planes);
-        break;
-      case 16:
-        col2im<16>(col, s, f, ld, i * p, planes);
-        break;
-      case 32:
-        col2im<32>(col, s, f, ld, i * p, planes);
-        break;
-      default:
-        col2im<0>(col, s, f, ld, i * p, planes);
-    }
+    with_fixed_width(
+        s.ow, [&](auto width) { col2im<decltype(width)::value>(col, s, f, ld, i * p, planes); });
     T* sample = x + (n0 + i) * chw;
-    if (s.g.stride_w == 2)
-      merge_phases<2>(planes, s, f, sample);
-    else if (s.g.stride_w == 1)
-      merge_phases<1>(planes, s, f, sample);
-    else
-      merge_phases<0>(planes, s, f, sample);
+    with_fixed_stride(s.g.stride_w, [&](auto stride) {
+      merge_phases<decltype(stride)::value>(planes, s, f, sample);
+    });
   }
 }
 
@@ -509,10 +507,12 @@ Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
   if (groups == 1) return partial[0];
   Tensor<T> gw = Tensor<T>::uninitialised(w_shape);
   T* out = gw.mutable_data();
-  parallel_for_elements(gw.numel(), [&](int64_t k) {
-    T sum = partial[0].data()[k];
-    for (int64_t gi = 1; gi < groups; ++gi) sum += partial[gi].data()[k];
-    out[k] = sum;
+  parallel_for_chunks(gw.numel(), [&](int64_t begin, int64_t end) {
+    for (int64_t k = begin; k < end; ++k) {
+      T sum = partial[0].data()[k];
+      for (int64_t gi = 1; gi < groups; ++gi) sum += partial[gi].data()[k];
+      out[k] = sum;
+    }
   });
   return gw;
 }

@@ -179,12 +179,14 @@ void Adam<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<Tens
     T* v = v_[i].mutable_data();
     Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
     T* out = fresh.mutable_data();
-    parallel_for_elements(n, [&](int64_t k) {
-      m[k] = beta1 * m[k] + keep1 * g[k];
-      v[k] = beta2 * v[k] + keep2 * (g[k] * g[k]);
-      const T m_hat = m[k] / correction1;
-      const T v_hat = v[k] / correction2;
-      out[k] = shrink * theta[k] - alpha * m_hat / (std::sqrt(v_hat) + epsilon);
+    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
+      for (int64_t k = begin; k < end; ++k) {
+        m[k] = beta1 * m[k] + keep1 * g[k];
+        v[k] = beta2 * v[k] + keep2 * (g[k] * g[k]);
+        const T m_hat = m[k] / correction1;
+        const T v_hat = v[k] / correction2;
+        out[k] = shrink * theta[k] - alpha * m_hat / (std::sqrt(v_hat) + epsilon);
+      }
     });
     *params[i] = std::move(fresh);
   }
@@ -230,9 +232,11 @@ void MomentumSgd<T>::step(const std::vector<Tensor<T>*>& params,
     T* velocity = velocity_[i].mutable_data();
     Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
     T* out = fresh.mutable_data();
-    parallel_for_elements(n, [&](int64_t k) {
-      velocity[k] = mu * velocity[k] + g[k];
-      out[k] = theta[k] - lr * velocity[k];
+    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
+      for (int64_t k = begin; k < end; ++k) {
+        velocity[k] = mu * velocity[k] + g[k];
+        out[k] = theta[k] - lr * velocity[k];
+      }
     });
     *params[i] = std::move(fresh);
   }
@@ -276,9 +280,11 @@ void RmsProp<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<T
     T* s = mean_square_[i].mutable_data();
     Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
     T* out = fresh.mutable_data();
-    parallel_for_elements(n, [&](int64_t k) {
-      s[k] = rho * s[k] + keep * (g[k] * g[k]);
-      out[k] = theta[k] - lr * g[k] / (std::sqrt(s[k]) + epsilon);
+    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
+      for (int64_t k = begin; k < end; ++k) {
+        s[k] = rho * s[k] + keep * (g[k] * g[k]);
+        out[k] = theta[k] - lr * g[k] / (std::sqrt(s[k]) + epsilon);
+      }
     });
     *params[i] = std::move(fresh);
   }

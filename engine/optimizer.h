@@ -7,7 +7,7 @@
 // storage (a recorded tape, a snapshot) keeps seeing the old values. The optimiser's own
 // state is private to it and is updated in place.
 //
-// Elementwise work runs through parallel_for_elements (parallel.h); every element is
+// Elementwise work runs through parallel_for_chunks (parallel.h); every element is
 // computed independently, so results are bit-identical whatever the thread count.
 //
 // Thread safety: one optimiser must not be used from two threads at once; distinct

@@ -32,14 +32,14 @@ void parallel_for(int64_t count, bool parallel, Body&& body) {
   for (int64_t i = 0; i < count; ++i) body(i);
 }
 
-// Runs body(k) for every element index k in 0..n-1, in fixed chunks of kParallelGrain
-// spread over the threads (one chunk: the calling thread alone). For elementwise work.
+// Runs body(begin, end) over the element indices 0..n-1 in fixed chunks of kParallelGrain
+// spread over the threads (one chunk: the calling thread alone). For elementwise work: the
+// body's own loop over begin..end-1, on local pointers, is what the compiler vectorises.
 template <class Body>
-void parallel_for_elements(int64_t n, Body&& body) {
+void parallel_for_chunks(int64_t n, Body&& body) {
   const int64_t chunks = (n + kParallelGrain - 1) / kParallelGrain;
   parallel_for(chunks, true, [&](int64_t c) {
-    const int64_t end = n < (c + 1) * kParallelGrain ? n : (c + 1) * kParallelGrain;
-    for (int64_t k = c * kParallelGrain; k < end; ++k) body(k);
+    body(c * kParallelGrain, n < (c + 1) * kParallelGrain ? n : (c + 1) * kParallelGrain);
   });
 }
 
