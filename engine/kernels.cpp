@@ -9,6 +9,7 @@
 #include <string>
 
 #include "engine/error.h"
+#include "engine/kernels_detail.h"
 #include "engine/parallel.h"
 
 namespace spar {
@@ -45,19 +46,10 @@ Tensor<T> map(const Tensor<T>& x, F f) {
   return y;
 }
 
-// The sum of n values in double, in a fixed order that depends only on n: eight interleaved
-// partial sums (so the additions need not wait for each other and vectorise), added in a
-// fixed tree, then the tail.
+// The sum of n values in double (kernels_detail.h).
 template <class T>
 double sum_run(const T* __restrict x, int64_t n) {
-  double lane[8] = {0, 0, 0, 0, 0, 0, 0, 0};
-  int64_t i = 0;
-  for (; i + 8 <= n; i += 8)
-    for (int j = 0; j < 8; ++j) lane[j] += static_cast<double>(x[i + j]);
-  double s =
-      ((lane[0] + lane[1]) + (lane[2] + lane[3])) + ((lane[4] + lane[5]) + (lane[6] + lane[7]));
-  for (; i < n; ++i) s += static_cast<double>(x[i]);
-  return s;
+  return detail::lane_sum(n, [x](int64_t i) { return static_cast<double>(x[i]); });
 }
 
 template <class T>
@@ -237,8 +229,6 @@ Tensor<T> unary(Unary f, const Tensor<T>& x) {
       return map(x, [](T v) { return sigmoid(v); });
     case Unary::kRelu:
       return map(x, [](T v) { return v > 0 ? v : T(0); });
-    case Unary::kStep:
-      return map(x, [](T v) { return v > 0 ? T(1) : T(0); });
     case Unary::kSoftplus:
       return map(x, [](T v) { return softplus(v); });
     case Unary::kLogSigmoid:
@@ -274,6 +264,15 @@ template <class T>
 Tensor<T> leaky_relu_slope(const Tensor<T>& x, double slope) {
   const T k = static_cast<T>(slope);
   return map(x, [k](T v) { return v > 0 ? T(1) : k; });
+}
+
+template <class T>
+Tensor<T> leaky_relu_adjoint(const Tensor<T>& g, const Tensor<T>& x, double slope) {
+  if (g.shape() != x.shape())
+    raise(ErrorKind::kBadShape, "leaky_relu adjoint: gradient " + g.shape().str() + " and input " +
+                                    x.shape().str() + " differ");
+  const T k = static_cast<T>(slope);
+  return broadcast_binary(g, x, "leaky_relu adjoint", [k](T u, T v) { return v > 0 ? u : k * u; });
 }
 
 template <class T>
@@ -562,6 +561,7 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
   template Tensor<T> add_scalar(const Tensor<T>&, double);                            \
   template Tensor<T> leaky_relu(const Tensor<T>&, double);                            \
   template Tensor<T> leaky_relu_slope(const Tensor<T>&, double);                      \
+  template Tensor<T> leaky_relu_adjoint(const Tensor<T>&, const Tensor<T>&, double);  \
   template Tensor<T> binary(Binary, const Tensor<T>&, const Tensor<T>&, const char*); \
   template Tensor<T> broadcast_to(const Tensor<T>&, const Shape&);                    \
   template Tensor<T> sum_into_shape(const Tensor<T>&, const Shape&);                  \

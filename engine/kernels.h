@@ -28,7 +28,6 @@ enum class Unary {
   kTanh,
   kSigmoid,
   kRelu,
-  kStep,        // 1 where x > 0, else 0 (the derivative of relu)
   kSoftplus,    // log(1 + e^x), computed as max(x, 0) + log1p(e^-|x|)
   kLogSigmoid,  // log(sigmoid(x)) = min(x, 0) - log1p(e^-|x|)
 };
@@ -47,6 +46,9 @@ template <class T>
 Tensor<T> leaky_relu(const Tensor<T>& x, double slope);
 template <class T>
 Tensor<T> leaky_relu_slope(const Tensor<T>& x, double slope);
+// g·leaky_relu_slope(x, slope) in one pass: the adjoint of leaky relu (relu: slope 0).
+template <class T>
+Tensor<T> leaky_relu_adjoint(const Tensor<T>& g, const Tensor<T>& x, double slope);
 
 enum class Binary { kAdd, kSubtract, kMultiply, kDivide };
 // Elementwise with numpy broadcasting; `op` names the operation in shape errors.
@@ -112,6 +114,30 @@ Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const C
 template <class T>
 Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
                                       const ConvGeometry& g, int64_t kernel_h, int64_t kernel_w);
+
+// ---- batch normalisation, per channel: axis 1 of [N, C] or [N, C, H, W] (kernels_norm.cpp) ----
+// Each channel's statistics are taken over every other axis, accumulated in double; the work
+// is split over channels, so results do not depend on the thread count.
+
+// The batch mean and biased variance of each channel, as rows 0 and 1 of a [2, C] tensor.
+template <class T>
+Tensor<T> channel_statistics(const Tensor<T>& x);
+// (x − mean)/√(variance + ε)·scale + shift per channel; statistics from channel_statistics,
+// scale and shift of shape [C].
+template <class T>
+Tensor<T> normalise_channels(const Tensor<T>& x, const Tensor<T>& statistics,
+                             const Tensor<T>& scale, const Tensor<T>& shift, double epsilon);
+// The adjoint of normalise_channels when the statistics are x's own (so they depend on x):
+// for the output gradient g, with x̂ = (x − mean)/√(variance + ε) and m values per channel,
+//   shift: Σ g    scale: Σ g·x̂    x: scale/√(variance + ε) · (g − (Σ g + x̂·Σ g·x̂)/m).
+template <class T>
+struct NormaliseGradients {
+  Tensor<T> x, scale, shift;
+};
+template <class T>
+NormaliseGradients<T> normalise_channels_adjoint(const Tensor<T>& g, const Tensor<T>& x,
+                                                 const Tensor<T>& statistics,
+                                                 const Tensor<T>& scale, double epsilon);
 
 // Σ x, accumulated in double over fixed chunks.
 template <class T>

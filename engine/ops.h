@@ -96,6 +96,15 @@ template <class T>
 Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
                                    int64_t kernel_h, int64_t kernel_w);
 
+// ---- batch normalisation (ops_norm.cpp) ----
+// Per channel (axis 1 of [N, C] or [N, C, H, W]): (x − mean)/√(variance + ε)·scale + shift,
+// with the batch's own mean and biased variance over every other axis (Ioffe & Szegedy
+// 2015), so gradients also flow through the statistics. scale and shift: [C]. When
+// `statistics` is given it receives the batch mean and variance as a [2, C] tensor.
+template <class T>
+Var<T> batch_normalise(const Var<T>& x, const Var<T>& scale, const Var<T>& shift, double epsilon,
+                       Tensor<T>* statistics = nullptr);
+
 // ---- reductions (an axis may be negative: -1 is the last) ----
 template <class T>
 Var<T> sum(const Var<T>& x);  // all elements, rank-0 result

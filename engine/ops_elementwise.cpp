@@ -62,11 +62,20 @@ SPAR_ADJOINT(tanh_adjoint) {
 SPAR_ADJOINT(sigmoid_adjoint) {
   gi[0] = multiply(g, multiply(y, add_scalar(negate(y), 1.0)));  // y(1 − y)
 }
+// g·(1 where x > 0, else slope), the adjoint of leaky relu and (slope 0) of relu: one fused
+// pass when the backward pass is not recorded (tape.h, invariant 8), else a product with the
+// constant slope mask (the second derivative is zero wherever it exists).
+template <class T>
+Var<T> gate(const Var<T>& g, const Var<T>& x, double slope) {
+  if (!recording_enabled())
+    return constant(kernels::leaky_relu_adjoint(g.value(), x.value(), slope));
+  return multiply(g, constant(kernels::leaky_relu_slope(x.value(), slope)));
+}
 SPAR_ADJOINT(relu_adjoint) {
-  gi[0] = multiply(g, constant(kernels::unary(Unary::kStep, input(n, 0).value())));
+  gi[0] = gate(g, input(n, 0), 0.0);
 }
 SPAR_ADJOINT(leaky_relu_adjoint) {
-  gi[0] = multiply(g, constant(kernels::leaky_relu_slope(input(n, 0).value(), n.args.scalar)));
+  gi[0] = gate(g, input(n, 0), n.args.scalar);
 }
 SPAR_ADJOINT(softplus_adjoint) {
   gi[0] = multiply(g, sigmoid(input(n, 0)));

@@ -28,6 +28,11 @@
 //  7. Threads: a tape and its Vars belong to one thread at a time. Kernels inside an
 //     operation may use several threads (parallel.h); the recording itself does not.
 //     The no-record switch is per thread.
+//  8. Fused adjoints: an adjoint may compute its results with fused kernels when the
+//     backward pass is not being recorded (recording_enabled() is false, so its results are
+//     constants anyway); when it is recorded, it composes differentiable operations. Both
+//     give the same derivative; the second-order checks (gradient_check.h) compare them,
+//     since they differentiate the recorded path against differences of the fused one.
 #pragma once
 
 #include <array>

@@ -25,27 +25,30 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
                                     std::to_string(channels_) + "] or [N, " +
                                     std::to_string(channels_) + ", H, W]");
   const Shape stat = s.rank() == 2 ? Shape{1, channels_} : Shape{1, channels_, 1, 1};
-  const int64_t m = s.numel() / channels_;  // values per channel
-  Var<T> mean, variance;
   if (ctx.training() || ctx.statistics_pass()) {
+    const int64_t m = s.numel() / channels_;  // values per channel
     if (m < 2)
       raise(ErrorKind::kBadShape,
             describe() + ": a training batch needs two or more values per channel, got " + s.str());
-    mean = scale(sum_into_shape(x, stat), 1.0 / static_cast<double>(m));
-    variance = scale(sum_into_shape(square(subtract(x, mean)), stat), 1.0 / static_cast<double>(m));
+    // Without the affine step, scale 1 and shift 0 as constants (they get no gradient).
+    const Var<T> gamma =
+        options_.affine ? ctx.use(scale_) : Var<T>(Tensor<T>::full({channels_}, T(1)));
+    const Var<T> beta = options_.affine ? ctx.use(shift_) : Var<T>(Tensor<T>::zeros({channels_}));
+    Tensor<T> batch;  // [2, C]: mean, biased variance
+    Var<T> y = batch_normalise(x, gamma, beta, options_.epsilon, &batch);
     const double r = ctx.statistics_pass() ? 1.0 : options_.running_rate,
                  unbiased = static_cast<double>(m) / static_cast<double>(m - 1);
-    const Tensor<T> batch_mean = mean.value().reshape({channels_}),
-                    batch_variance = variance.value().reshape({channels_});
-    running_mean_ = kernels::binary(kernels::Binary::kAdd, kernels::scale(running_mean_, 1 - r),
-                                    kernels::scale(batch_mean, r), "batch norm");
-    running_variance_ =
-        kernels::binary(kernels::Binary::kAdd, kernels::scale(running_variance_, 1 - r),
-                        kernels::scale(batch_variance, r * unbiased), "batch norm");
-  } else {
-    mean = Var<T>(running_mean_.reshape(stat));
-    variance = Var<T>(running_variance_.reshape(stat));
+    running_mean_ = kernels::binary(
+        kernels::Binary::kAdd, kernels::scale(running_mean_, 1 - r),
+        kernels::scale(kernels::slice(batch, 0, 0, 1).reshape({channels_}), r), "batch norm");
+    running_variance_ = kernels::binary(
+        kernels::Binary::kAdd, kernels::scale(running_variance_, 1 - r),
+        kernels::scale(kernels::slice(batch, 0, 1, 2).reshape({channels_}), r * unbiased),
+        "batch norm");
+    return y;
   }
+  // Inference: the running statistics, constants.
+  const Var<T> mean(running_mean_.reshape(stat)), variance(running_variance_.reshape(stat));
   Var<T> normalised = divide(subtract(x, mean), sqrt(add_scalar(variance, options_.epsilon)));
   if (!options_.affine) return normalised;
   return add(multiply(normalised, reshape(ctx.use(scale_), stat)), reshape(ctx.use(shift_), stat));

@@ -125,6 +125,30 @@ TEST_CASE("invariant 7: the no-record switch belongs to one thread", "[tape]") {
   CHECK(other_thread_records);
 }
 
+TEST_CASE("invariant 8: fused and recorded adjoints give the same gradient", "[tape]") {
+  // batch_normalise and leaky relu have fused adjoints; the recorded backward pass composes
+  // ops instead. Both must agree, and only the recorded one may be differentiated again.
+  Rng rng(8, 1);
+  const D x0 = rng.uniform<double>({4, 3, 2, 2}, -2, 2),
+          w0 = rng.uniform<double>({4, 3, 2, 2}, -1, 1);
+  const D gamma0 = rng.uniform<double>({3}, 0.5, 2), beta0 = rng.uniform<double>({3}, -1, 1);
+  auto gradients = [&](bool record) {
+    Tape<double> tape;
+    V x = tape.variable(x0), gamma = tape.variable(gamma0), beta = tape.variable(beta0);
+    V y = leaky_relu(batch_normalise(x, gamma, beta, 1e-3), 0.2);
+    V loss = sum(multiply(V(w0), add(y, square(relu(y)))));
+    std::vector<V> g = tape.gradient(loss, {x, gamma, beta}, GradientOptions{record});
+    for (const V& v : g) CHECK(v.recorded() == record);
+    std::vector<D> out;
+    for (const V& v : g) out.push_back(v.value());
+    return out;
+  };
+  const std::vector<D> fused = gradients(false), recorded = gradients(true);
+  for (size_t k = 0; k < fused.size(); ++k)
+    for (int64_t i = 0; i < fused[k].numel(); ++i)
+      CHECK(fused[k].data()[i] == Approx(recorded[k].data()[i]).margin(1e-12).epsilon(1e-12));
+}
+
 TEST_CASE("the gradient of a gradient: d³/dx³ x⁴ = 24x (calculus)", "[tape][second-order]") {
   Tape<double> tape;
   V x = tape.variable(vec({0.5, -1.5}));
