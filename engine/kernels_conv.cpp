@@ -173,8 +173,11 @@ struct Phases {
   }
 };
 
-// Splits sample x (C×H×W) into its phase planes, with zeros where xpad is padding. kStride is
-// the width stride when fixed at compile time (0: s.g.stride_w).
+// Copies sample x (C×H×W) into its phase planes. Only the positions that hold x are written:
+// the zero padding is the same for every sample, so the caller zeroes the planes once and
+// reuses them (a per-row fill of one or two padding values compiled to a memset call per row,
+// which cost more than the copy). kStride is the width stride when fixed at compile time
+// (0: s.g.stride_w).
 template <int kStride, class T>
 void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
   const int64_t stride = kStride > 0 ? kStride : s.g.stride_w, cols = f.cols;
@@ -186,14 +189,9 @@ void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
         T* dst = planes + f.offset(c, a, b);
         for (int64_t i = 0; i < f.rows; ++i, dst += cols) {
           const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
-          if (ih < 0 || ih >= s.h) {
-            for (int64_t j = 0; j < cols; ++j) dst[j] = T(0);
-            continue;
-          }
+          if (ih < 0 || ih >= s.h) continue;
           const T* src = x + (c * s.h + ih) * s.w + b - s.g.pad_w;
-          for (int64_t j = 0; j < lo; ++j) dst[j] = T(0);
           for (int64_t j = lo; j < hi; ++j) dst[j] = src[j * stride];
-          for (int64_t j = hi; j < cols; ++j) dst[j] = T(0);
         }
       }
   }
@@ -295,6 +293,7 @@ template <class T>
 void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t n0, int64_t count,
                         T* planes, T* col) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
+  std::fill(planes, planes + f.size(s), T(0));  // the padding, for every sample (split_phases)
   for (int64_t i = 0; i < count; ++i) {
     const T* sample = x + (n0 + i) * chw;
     with_fixed_stride(s.g.stride_w, [&](auto stride) {
@@ -507,11 +506,13 @@ Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
   if (groups == 1) return partial[0];
   Tensor<T> gw = Tensor<T>::uninitialised(w_shape);
   T* out = gw.mutable_data();
+  // ((p0 + p1) + p2) + … per element, group by group so each pass is one vector loop.
   parallel_for_chunks(gw.numel(), [&](int64_t begin, int64_t end) {
-    for (int64_t k = begin; k < end; ++k) {
-      T sum = partial[0].data()[k];
-      for (int64_t gi = 1; gi < groups; ++gi) sum += partial[gi].data()[k];
-      out[k] = sum;
+    std::copy(partial[0].data() + begin, partial[0].data() + end, out + begin);
+    for (int64_t gi = 1; gi < groups; ++gi) {
+      const T* __restrict in = partial[gi].data();
+      T* __restrict acc = out;
+      for (int64_t k = begin; k < end; ++k) acc[k] += in[k];
     }
   });
   return gw;
