@@ -1,15 +1,11 @@
 // spar: train small GANs on a CPU. This file only wires subcommands to their handlers and
 // maps errors to exit codes: 0 success, 1 the work failed, 2 bad usage or bad input.
 // Errors print one line on stderr: "spar: <what>: <why>".
-#include <unistd.h>
-
 #include <CLI/CLI.hpp>
 #include <cstdlib>
 #include <iostream>
+#include <unistd.h>
 #include <vector>
-#ifdef __GLIBC__
-#include <malloc.h>
-#endif
 
 #include "cli/commands.h"
 #include "engine/error.h"
@@ -43,23 +39,10 @@ void use_short_openmp_spin(char** argv) {
 #endif
 }
 
-// glibc serves a large allocation (a checkpoint being written, a picture being encoded) with
-// mmap and, once it is freed, raises its mmap threshold to that size, so later ones come from
-// the heap, which keeps their pages. A training run then grew by about 4 MiB after its first
-// checkpoints and picture, and stayed there. A fixed threshold of 1 MiB (which also turns the
-// raising off) keeps large buffers out of the heap, and resident memory flat
-// (benchmarks/training_memory.sh). Tensors are unaffected: the buffer pool keeps its blocks.
-void keep_large_buffers_out_of_the_heap() {
-#ifdef __GLIBC__
-  mallopt(M_MMAP_THRESHOLD, 1 << 20);
-#endif
-}
-
 }  // namespace
 
 int main(int argc, char** argv) {
   use_short_openmp_spin(argv);
-  keep_large_buffers_out_of_the_heap();
   CLI::App app{"spar: train small generative adversarial networks on a CPU"};
   app.require_subcommand(1);
   app.set_version_flag("--version", "spar 0.1.0");
