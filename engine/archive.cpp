@@ -327,6 +327,13 @@ std::string Archive::to_bytes() const {
 }
 
 void write_file_atomically(const std::string& path, const void* data, size_t size) {
+  write_file_atomically(path, [data, size](const ByteSink& sink) {
+    if (size > 0) sink(data, size);
+  });
+}
+
+void write_file_atomically(const std::string& path,
+                           const std::function<void(const ByteSink&)>& produce) {
   const std::string tmp = path + ".tmp-" + std::to_string(static_cast<long>(::getpid()));
   auto fail = [&path](const std::string& what, int err) {
     raise(ErrorKind::kIo, path + ": " + what + ": " + std::strerror(err));
@@ -334,8 +341,10 @@ void write_file_atomically(const std::string& path, const void* data, size_t siz
   std::FILE* f = std::fopen(tmp.c_str(), "wb");
   if (!f) fail("cannot create temporary file '" + tmp + "'", errno);
   try {
-    if (size > 0 && std::fwrite(data, 1, size, f) != size)
-      fail("cannot write '" + tmp + "'", errno);
+    produce([&](const void* data, size_t size) {
+      if (size > 0 && std::fwrite(data, 1, size, f) != size)
+        fail("cannot write '" + tmp + "'", errno);
+    });
     if (std::fflush(f) != 0) fail("cannot write '" + tmp + "'", errno);
     if (::fsync(::fileno(f)) != 0) fail("cannot sync '" + tmp + "'", errno);
     std::FILE* closing = f;
@@ -361,8 +370,7 @@ void write_file_atomically(const std::string& path, const void* data, size_t siz
 }
 
 void Archive::write_file(const std::string& path) const {
-  const std::string bytes = to_bytes();
-  write_file_atomically(path, bytes.data(), bytes.size());
+  write_file_atomically(path, [this](const ByteSink& sink) { emit(sink); });
 }
 
 // ---- reading ------------------------------------------------------------------------------

@@ -73,7 +73,7 @@ class Archive {
   std::string to_bytes() const;
   static Archive from_bytes(const std::string& bytes, const std::string& label);
 
-  // to_bytes() written with write_file_atomically (below).
+  // The bytes of to_bytes(), streamed to the file with write_file_atomically (below).
   void write_file(const std::string& path) const;
   // Raises kIo when the file cannot be opened or read, kCorruptCheckpoint when it does not
   // pass the reader's checks.
@@ -109,6 +109,11 @@ extern template Tensor<double> Archive::tensor<double>(const std::string&) const
 // not write the same path at the same time (they would share the temporary name). Every file
 // spar writes goes through here: checkpoints, pictures, plots, logs rewritten on resume.
 void write_file_atomically(const std::string& path, const void* data, size_t size);
+// The same for bytes that `produce` hands to its sink piece by piece, in order, so that a
+// large file (a checkpoint) is never held in memory whole.
+using ByteSink = std::function<void(const void*, size_t)>;
+void write_file_atomically(const std::string& path,
+                           const std::function<void(const ByteSink&)>& produce);
 
 // CRC-32 as in IEEE 802.3 (reflected polynomial 0xEDB88320, initial value and final xor
 // 0xFFFFFFFF). Pass the previous result as `crc` to continue over more bytes:

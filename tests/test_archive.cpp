@@ -492,6 +492,17 @@ TEST_CASE("write_file is atomic and leaves nothing behind", "[archive]") {
     std::remove(inside.c_str());
     rmdir(target.c_str());
   }
+  SECTION("bytes streamed by a producer that fails half way: the old file stays intact") {
+    const auto produce = [](const spar::ByteSink& sink) {
+      sink("partial", 7);
+      spar::raise(ErrorKind::kIo, "producer gave up");
+    };
+    CHECK(error_kind_of([&] { spar::write_file_atomically(path, produce); }, &message) ==
+          ErrorKind::kIo);
+    CHECK(message == "producer gave up");
+    CHECK(slurp(path) == first_bytes);
+    CHECK(folder_entries(folder) == std::vector<std::string>{"state.spar"});
+  }
   SECTION("a successful overwrite replaces the file and leaves no temporary file") {
     second.write_file(path);
     CHECK(folder_entries(folder) == std::vector<std::string>{"state.spar"});
