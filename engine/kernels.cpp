@@ -276,6 +276,14 @@ Tensor<T> leaky_relu_adjoint(const Tensor<T>& g, const Tensor<T>& x, double slop
 }
 
 template <class T>
+Tensor<T> tanh_adjoint(const Tensor<T>& g, const Tensor<T>& y) {
+  if (g.shape() != y.shape())
+    raise(ErrorKind::kBadShape, "tanh adjoint: gradient " + g.shape().str() + " and output " +
+                                    y.shape().str() + " differ");
+  return broadcast_binary(g, y, "tanh adjoint", [](T u, T v) { return u * (T(1) - v * v); });
+}
+
+template <class T>
 Tensor<T> binary(Binary f, const Tensor<T>& a, const Tensor<T>& b, const char* op) {
   switch (f) {
     case Binary::kAdd:
@@ -562,6 +570,7 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
   template Tensor<T> leaky_relu(const Tensor<T>&, double);                            \
   template Tensor<T> leaky_relu_slope(const Tensor<T>&, double);                      \
   template Tensor<T> leaky_relu_adjoint(const Tensor<T>&, const Tensor<T>&, double);  \
+  template Tensor<T> tanh_adjoint(const Tensor<T>&, const Tensor<T>&);                \
   template Tensor<T> binary(Binary, const Tensor<T>&, const Tensor<T>&, const char*); \
   template Tensor<T> broadcast_to(const Tensor<T>&, const Shape&);                    \
   template Tensor<T> sum_into_shape(const Tensor<T>&, const Shape&);                  \

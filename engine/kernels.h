@@ -49,6 +49,9 @@ Tensor<T> leaky_relu_slope(const Tensor<T>& x, double slope);
 // g·leaky_relu_slope(x, slope) in one pass: the adjoint of leaky relu (relu: slope 0).
 template <class T>
 Tensor<T> leaky_relu_adjoint(const Tensor<T>& g, const Tensor<T>& x, double slope);
+// g·(1 − y²) in one pass: the adjoint of tanh, from its output y.
+template <class T>
+Tensor<T> tanh_adjoint(const Tensor<T>& g, const Tensor<T>& y);
 
 enum class Binary { kAdd, kSubtract, kMultiply, kDivide };
 // Elementwise with numpy broadcasting; `op` names the operation in shape errors.

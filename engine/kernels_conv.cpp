@@ -168,6 +168,13 @@ struct Phases {
   int64_t plane() const { return rows * cols; }
   int64_t channel() const { return ph * pw * plane(); }  // one channel's planes
   int64_t size(const ConvShape& s) const { return s.c * channel(); }
+  // Whether every input position lies in some plane (so merge_phases writes all of x): all
+  // stride phases are present (kernel ≥ stride) and the planes reach the last row and column.
+  bool covers_input(const ConvShape& s) const {
+    return ph == s.g.stride_h && pw == s.g.stride_w &&
+           (s.h - 1 + s.g.pad_h) / s.g.stride_h < rows &&
+           (s.w - 1 + s.g.pad_w) / s.g.stride_w < cols;
+  }
   int64_t offset(int64_t c, int64_t a, int64_t b) const {
     return c * channel() + (a * pw + b) * plane();
   }
@@ -428,9 +435,11 @@ Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const C
   const ConvShape s = conv_shape(Shape{z.dim(0), w.dim(1), out_h, out_w}, w.shape(), g,
                                  "transposed_convolution", operands);
   count_flops(s);
-  Tensor<T> x = Tensor<T>::zeros({s.n, s.c, s.h, s.w});
   const int64_t p = s.positions();
   const Phases f(s);
+  // Positions no kernel tap reaches stay zero; when there are none, no need to clear x first.
+  Tensor<T> x = f.covers_input(s) ? Tensor<T>::uninitialised({s.n, s.c, s.h, s.w})
+                                  : Tensor<T>::zeros({s.n, s.c, s.h, s.w});
   const ConstMap<T> filters(w.data(), s.o, s.ckk());
   for_each_group(s, [&](int64_t n0, int64_t count, int64_t) {
     const int64_t ld = count * p;

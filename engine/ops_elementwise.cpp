@@ -56,8 +56,11 @@ SPAR_ADJOINT(power_adjoint) {
 SPAR_ADJOINT(abs_adjoint) {
   gi[0] = multiply(g, constant(kernels::unary(Unary::kSign, input(n, 0).value())));
 }
-SPAR_ADJOINT(tanh_adjoint) {
-  gi[0] = multiply(g, add_scalar(negate(square(y)), 1.0));  // 1 − y²
+SPAR_ADJOINT(tanh_adjoint) {  // g·(1 − y²), fused unless recorded (tape.h, invariant 8)
+  if (!recording_enabled())
+    gi[0] = constant(kernels::tanh_adjoint(g.value(), y.value()));
+  else
+    gi[0] = multiply(g, add_scalar(negate(square(y)), 1.0));
 }
 SPAR_ADJOINT(sigmoid_adjoint) {
   gi[0] = multiply(g, multiply(y, add_scalar(negate(y), 1.0)));  // y(1 − y)
