@@ -238,8 +238,12 @@ void im2col(const T* planes, const ConvShape& s, const Phases& f, T* col, int64_
     for (int64_t t = 0; t < taps; ++t) {
       T* row = col + (c * taps + t) * ld + col0;
       const T* src = channel + f.taps[t];
-      for (int64_t oi = 0; oi < oh; ++oi)
-        for (int64_t oj = 0; oj < ow; ++oj) row[oi * ow + oj] = src[oi * pitch + oj];
+      for (int64_t oi = 0; oi < oh; ++oi) {
+        if (kWidth > 0)  // a constant-size copy: two or three vector moves, even for widths 7, 14
+          std::memcpy(row + oi * ow, src + oi * pitch, sizeof(T) * kWidth);
+        else
+          for (int64_t oj = 0; oj < ow; ++oj) row[oi * ow + oj] = src[oi * pitch + oj];
+      }
     }
   }
 }
