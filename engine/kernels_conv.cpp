@@ -204,6 +204,35 @@ void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
   }
 }
 
+// split_phases for width stride 2 when both column phases exist and every input column lands
+// in a plane: each input row of kWidth (even) values is split into its even and odd elements
+// in one pass that reads the whole row, which the compiler turns into vector shuffles (the
+// per-phase strided gathers above stay scalar for rows this short).
+template <int kWidth, class T>
+void split_phases_in_pairs(const T* x, const ConvShape& s, const Phases& f, T* planes) {
+  const int64_t pad = s.g.pad_w, cols = f.cols;
+  // Input column 2k + e (e = 0, 1) is padded column 2k + e + pad: phase (e + pad) mod 2, at
+  // plane column k + (e + pad) div 2.
+  const int64_t even_phase = pad % 2, odd_phase = (pad + 1) % 2;
+  const int64_t even_shift = pad / 2, odd_shift = (pad + 1) / 2;
+  for (int64_t c = 0; c < s.c; ++c)
+    for (int64_t a = 0; a < f.ph; ++a) {
+      T* even_row = planes + f.offset(c, a, even_phase) + even_shift;
+      T* odd_row = planes + f.offset(c, a, odd_phase) + odd_shift;
+      for (int64_t i = 0; i < f.rows; ++i, even_row += cols, odd_row += cols) {
+        const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
+        if (ih < 0 || ih >= s.h) continue;
+        const T* __restrict src = x + (c * s.h + ih) * kWidth;
+        T* __restrict even = even_row;
+        T* __restrict odd = odd_row;
+        for (int64_t k = 0; k < kWidth / 2; ++k) {
+          even[k] = src[2 * k];
+          odd[k] = src[2 * k + 1];
+        }
+      }
+    }
+}
+
 // Writes phase planes back into sample x (C×H×W), dropping the padding. Each element of x lies
 // in at most one plane; those in none (a phase no tap reaches) are left as they are.
 template <int kStride, class T>
@@ -305,11 +334,27 @@ void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t
                         T* planes, T* col) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   std::fill(planes, planes + f.size(s), T(0));  // the padding, for every sample (split_phases)
+  // The input width when split_phases_in_pairs applies: stride 2, both column phases, every
+  // input column inside the planes, an even width it is compiled for; else 0.
+  const bool pairs =
+      s.g.stride_w == 2 && f.pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_w) / 2 < f.cols;
+  const int64_t pairs_width = pairs ? s.w : 0;
   for (int64_t i = 0; i < count; ++i) {
     const T* sample = x + (n0 + i) * chw;
-    with_fixed_stride(s.g.stride_w, [&](auto stride) {
-      split_phases<decltype(stride)::value>(sample, s, f, planes);
-    });
+    if (pairs_width == 16)
+      split_phases_in_pairs<16>(sample, s, f, planes);
+    else if (pairs_width == 8)
+      split_phases_in_pairs<8>(sample, s, f, planes);
+    else if (pairs_width == 32)
+      split_phases_in_pairs<32>(sample, s, f, planes);
+    else if (pairs_width == 28)
+      split_phases_in_pairs<28>(sample, s, f, planes);
+    else if (pairs_width == 14)
+      split_phases_in_pairs<14>(sample, s, f, planes);
+    else
+      with_fixed_stride(s.g.stride_w, [&](auto stride) {
+        split_phases<decltype(stride)::value>(sample, s, f, planes);
+      });
     with_fixed_width(
         s.ow, [&](auto width) { im2col<decltype(width)::value>(planes, s, f, col, ld, i * p); });
   }
