@@ -296,35 +296,29 @@ void col2im(const T* col, const ConvShape& s, const Phases& f, int64_t ld, int64
   }
 }
 
-// Calls f(std::integral_constant<int, W>()) with W = ow for the output widths of the shipped
-// architectures (28, 32 and 64-pixel DCGAN pairs: 4, 7, 8, 14, 16, 32), so that their row
-// copies are fixed-length vector moves; W = 0 (the width read at run time) otherwise.
-template <class F>
-void with_fixed_width(int64_t ow, F&& f) {
-  switch (ow) {
-    case 4:
-      return f(std::integral_constant<int, 4>());
-    case 7:
-      return f(std::integral_constant<int, 7>());
-    case 8:
-      return f(std::integral_constant<int, 8>());
-    case 14:
-      return f(std::integral_constant<int, 14>());
-    case 16:
-      return f(std::integral_constant<int, 16>());
-    case 32:
-      return f(std::integral_constant<int, 32>());
-    default:
-      return f(std::integral_constant<int, 0>());
-  }
+// Calls f(std::integral_constant<int, W>()) with W = n when n is one of kValues, else with
+// W = 0 (meaning: read at run time), so that loops over widths the shipped architectures use
+// are compiled for their exact length.
+template <int... kValues, class F>
+void with_fixed(int64_t n, F&& f) {
+  bool done = false;
+  ((done = done || (n == kValues && (f(std::integral_constant<int, kValues>()), true))), ...);
+  if (!done) f(std::integral_constant<int, 0>());
 }
 
-// The same for the width stride: 1 and 2 fixed, others read at run time.
+// Output widths of the 28, 32 and 64-pixel DCGAN pairs (im2col, col2im), their input widths
+// at stride 2 (split_phases_in_pairs), and the strides compiled for.
+template <class F>
+void with_fixed_output_width(int64_t ow, F&& f) {
+  with_fixed<4, 7, 8, 14, 16, 32>(ow, f);
+}
+template <class F>
+void with_fixed_input_width(int64_t w, F&& f) {
+  with_fixed<8, 14, 16, 28, 32, 64>(w, f);
+}
 template <class F>
 void with_fixed_stride(int64_t stride, F&& f) {
-  if (stride == 2) return f(std::integral_constant<int, 2>());
-  if (stride == 1) return f(std::integral_constant<int, 1>());
-  return f(std::integral_constant<int, 0>());
+  with_fixed<1, 2>(stride, f);
 }
 
 // Writes the columns of samples n0..n0+count-1 of x into `col` ([C·KH·KW, count·OH·OW]) through
@@ -334,28 +328,21 @@ void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t
                         T* planes, T* col) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   std::fill(planes, planes + f.size(s), T(0));  // the padding, for every sample (split_phases)
-  // The input width when split_phases_in_pairs applies: stride 2, both column phases, every
-  // input column inside the planes, an even width it is compiled for; else 0.
+  // split_phases_in_pairs applies at stride 2 when both column phases exist, every input
+  // column lands inside the planes and the width is even (and compiled for).
   const bool pairs =
       s.g.stride_w == 2 && f.pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_w) / 2 < f.cols;
-  const int64_t pairs_width = pairs ? s.w : 0;
   for (int64_t i = 0; i < count; ++i) {
     const T* sample = x + (n0 + i) * chw;
-    if (pairs_width == 16)
-      split_phases_in_pairs<16>(sample, s, f, planes);
-    else if (pairs_width == 8)
-      split_phases_in_pairs<8>(sample, s, f, planes);
-    else if (pairs_width == 32)
-      split_phases_in_pairs<32>(sample, s, f, planes);
-    else if (pairs_width == 28)
-      split_phases_in_pairs<28>(sample, s, f, planes);
-    else if (pairs_width == 14)
-      split_phases_in_pairs<14>(sample, s, f, planes);
-    else
-      with_fixed_stride(s.g.stride_w, [&](auto stride) {
-        split_phases<decltype(stride)::value>(sample, s, f, planes);
-      });
-    with_fixed_width(
+    with_fixed_input_width(pairs ? s.w : 0, [&](auto width) {
+      if constexpr (decltype(width)::value > 0)
+        split_phases_in_pairs<decltype(width)::value>(sample, s, f, planes);
+      else
+        with_fixed_stride(s.g.stride_w, [&](auto stride) {
+          split_phases<decltype(stride)::value>(sample, s, f, planes);
+        });
+    });
+    with_fixed_output_width(
         s.ow, [&](auto width) { im2col<decltype(width)::value>(planes, s, f, col, ld, i * p); });
   }
 }
@@ -367,7 +354,7 @@ void columns_to_samples(const T* col, const ConvShape& s, const Phases& f, int64
                         int64_t count, T* planes, T* x) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   for (int64_t i = 0; i < count; ++i) {
-    with_fixed_width(
+    with_fixed_output_width(
         s.ow, [&](auto width) { col2im<decltype(width)::value>(col, s, f, ld, i * p, planes); });
     T* sample = x + (n0 + i) * chw;
     with_fixed_stride(s.g.stride_w, [&](auto stride) {
