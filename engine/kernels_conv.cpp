@@ -268,13 +268,25 @@ void im2col(const T* planes, const ConvShape& s, const Phases& f, T* col, int64_
       T* row = col + (c * taps + t) * ld + col0;
       const T* src = channel + f.taps[t];
       for (int64_t oi = 0; oi < oh; ++oi) {
-        if (kWidth > 0)  // a constant-size copy: two or three vector moves, even for widths 7, 14
+        if constexpr (kWidth > 0)  // a constant-size copy: a few vector moves, even for 7, 14
           std::memcpy(row + oi * ow, src + oi * pitch, sizeof(T) * kWidth);
         else
           for (int64_t oj = 0; oj < ow; ++oj) row[oi * ow + oj] = src[oi * pitch + oj];
       }
     }
   }
+}
+
+// dst[0..kWidth) += src[0..kWidth) as runs of 8, 4, 2 and 1: loops of those fixed lengths
+// vectorise, while one loop of 7 or 14 compiles to as many scalar additions.
+template <int kWidth, class T>
+inline void add_run(T* __restrict dst, const T* __restrict src) {
+  constexpr int k8 = kWidth / 8 * 8, k4 = k8 + (kWidth - k8) / 4 * 4,
+                k2 = k4 + (kWidth - k4) / 2 * 2;
+  for (int j = 0; j < k8; ++j) dst[j] += src[j];
+  for (int j = k8; j < k4; ++j) dst[j] += src[j];
+  for (int j = k4; j < k2; ++j) dst[j] += src[j];
+  for (int j = k2; j < kWidth; ++j) dst[j] += src[j];
 }
 
 // The adjoint of im2col: adds the columns into zeroed phase planes, in (c, ki, kj, oi, oj)
@@ -290,8 +302,12 @@ void col2im(const T* col, const ConvShape& s, const Phases& f, int64_t ld, int64
     for (int64_t t = 0; t < taps; ++t) {
       const T* row = col + (c * taps + t) * ld + col0;
       T* dst = channel + f.taps[t];
-      for (int64_t oi = 0; oi < oh; ++oi)
-        for (int64_t oj = 0; oj < ow; ++oj) dst[oi * pitch + oj] += row[oi * ow + oj];
+      for (int64_t oi = 0; oi < oh; ++oi) {
+        if constexpr (kWidth > 0)
+          add_run<kWidth>(dst + oi * pitch, row + oi * ow);
+        else
+          for (int64_t oj = 0; oj < ow; ++oj) dst[oi * pitch + oj] += row[oi * ow + oj];
+      }
     }
   }
 }
