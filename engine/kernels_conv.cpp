@@ -175,6 +175,11 @@ struct Phases {
            (s.h - 1 + s.g.pad_h) / s.g.stride_h < rows &&
            (s.w - 1 + s.g.pad_w) / s.g.stride_w < cols;
   }
+  // Whether split_phases_in_pairs and merge_phases_in_pairs apply: width stride 2 with both
+  // column phases present, an even width, and every input column inside the planes.
+  bool pairs(const ConvShape& s) const {
+    return s.g.stride_w == 2 && pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_w) / 2 < cols;
+  }
   int64_t offset(int64_t c, int64_t a, int64_t b) const {
     return c * channel() + (a * pw + b) * plane();
   }
@@ -252,6 +257,31 @@ void merge_phases(const T* planes, const ConvShape& s, const Phases& f, T* x) {
         }
       }
   }
+}
+
+// The reverse of split_phases_in_pairs, under the same conditions: each row of x is written
+// whole from its even and odd planes in one pass.
+template <int kWidth, class T>
+void merge_phases_in_pairs(const T* planes, const ConvShape& s, const Phases& f, T* x) {
+  const int64_t pad = s.g.pad_w, cols = f.cols;
+  const int64_t even_phase = pad % 2, odd_phase = (pad + 1) % 2;
+  const int64_t even_shift = pad / 2, odd_shift = (pad + 1) / 2;
+  for (int64_t c = 0; c < s.c; ++c)
+    for (int64_t a = 0; a < f.ph; ++a) {
+      const T* even_row = planes + f.offset(c, a, even_phase) + even_shift;
+      const T* odd_row = planes + f.offset(c, a, odd_phase) + odd_shift;
+      for (int64_t i = 0; i < f.rows; ++i, even_row += cols, odd_row += cols) {
+        const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
+        if (ih < 0 || ih >= s.h) continue;
+        T* __restrict dst = x + (c * s.h + ih) * kWidth;
+        const T* __restrict even = even_row;
+        const T* __restrict odd = odd_row;
+        for (int64_t k = 0; k < kWidth / 2; ++k) {
+          dst[2 * k] = even[k];
+          dst[2 * k + 1] = odd[k];
+        }
+      }
+    }
 }
 
 // Unfolds one sample's phase planes into rows of `col` (row stride ld) at columns
@@ -344,10 +374,7 @@ void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t
                         T* planes, T* col) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
   std::fill(planes, planes + f.size(s), T(0));  // the padding, for every sample (split_phases)
-  // split_phases_in_pairs applies at stride 2 when both column phases exist, every input
-  // column lands inside the planes and the width is even (and compiled for).
-  const bool pairs =
-      s.g.stride_w == 2 && f.pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_w) / 2 < f.cols;
+  const bool pairs = f.pairs(s);
   for (int64_t i = 0; i < count; ++i) {
     const T* sample = x + (n0 + i) * chw;
     with_fixed_input_width(pairs ? s.w : 0, [&](auto width) {
@@ -369,12 +396,18 @@ template <class T>
 void columns_to_samples(const T* col, const ConvShape& s, const Phases& f, int64_t n0,
                         int64_t count, T* planes, T* x) {
   const int64_t chw = s.c * s.h * s.w, p = s.positions(), ld = count * p;
+  const bool pairs = f.pairs(s);
   for (int64_t i = 0; i < count; ++i) {
     with_fixed_output_width(
         s.ow, [&](auto width) { col2im<decltype(width)::value>(col, s, f, ld, i * p, planes); });
     T* sample = x + (n0 + i) * chw;
-    with_fixed_stride(s.g.stride_w, [&](auto stride) {
-      merge_phases<decltype(stride)::value>(planes, s, f, sample);
+    with_fixed_input_width(pairs ? s.w : 0, [&](auto width) {
+      if constexpr (decltype(width)::value > 0)
+        merge_phases_in_pairs<decltype(width)::value>(planes, s, f, sample);
+      else
+        with_fixed_stride(s.g.stride_w, [&](auto stride) {
+          merge_phases<decltype(stride)::value>(planes, s, f, sample);
+        });
     });
   }
 }
