@@ -209,33 +209,40 @@ void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
   }
 }
 
-// split_phases for width stride 2 when both column phases exist and every input column lands
-// in a plane: each input row of kWidth (even) values is split into its even and odd elements
-// in one pass that reads the whole row, which the compiler turns into vector shuffles (the
-// per-phase strided gathers above stay scalar for rows this short).
-template <int kWidth, class T>
-void split_phases_in_pairs(const T* x, const ConvShape& s, const Phases& f, T* planes) {
-  const int64_t pad = s.g.pad_w, cols = f.cols;
-  // Input column 2k + e (e = 0, 1) is padded column 2k + e + pad: phase (e + pad) mod 2, at
-  // plane column k + (e + pad) div 2.
+// For width stride 2 when Phases::pairs holds: calls move(row, even, odd) with the offsets of
+// every row of x that lies in the planes and of its even and odd plane rows. Input column 2k + e
+// (e = 0, 1) is padded column 2k + e + pad: phase (e + pad) mod 2, plane column k + (e + pad)
+// div 2.
+template <class Move>
+void for_each_row_in_pairs(const ConvShape& s, const Phases& f, Move&& move) {
+  const int64_t pad = s.g.pad_w;
   const int64_t even_phase = pad % 2, odd_phase = (pad + 1) % 2;
   const int64_t even_shift = pad / 2, odd_shift = (pad + 1) / 2;
   for (int64_t c = 0; c < s.c; ++c)
-    for (int64_t a = 0; a < f.ph; ++a) {
-      T* even_row = planes + f.offset(c, a, even_phase) + even_shift;
-      T* odd_row = planes + f.offset(c, a, odd_phase) + odd_shift;
-      for (int64_t i = 0; i < f.rows; ++i, even_row += cols, odd_row += cols) {
+    for (int64_t a = 0; a < f.ph; ++a)
+      for (int64_t i = 0; i < f.rows; ++i) {
         const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
         if (ih < 0 || ih >= s.h) continue;
-        const T* __restrict src = x + (c * s.h + ih) * kWidth;
-        T* __restrict even = even_row;
-        T* __restrict odd = odd_row;
-        for (int64_t k = 0; k < kWidth / 2; ++k) {
-          even[k] = src[2 * k];
-          odd[k] = src[2 * k + 1];
-        }
+        move((c * s.h + ih) * s.w, f.offset(c, a, even_phase) + i * f.cols + even_shift,
+             f.offset(c, a, odd_phase) + i * f.cols + odd_shift);
       }
+}
+
+// split_phases for width stride 2 when Phases::pairs holds: each input row of kWidth values is
+// split into its even and odd elements in one pass that reads the whole row, which the
+// compiler turns into vector shuffles (the per-phase strided gathers above stay scalar for rows
+// this short).
+template <int kWidth, class T>
+void split_phases_in_pairs(const T* x, const ConvShape& s, const Phases& f, T* planes) {
+  for_each_row_in_pairs(s, f, [&](int64_t row, int64_t even_row, int64_t odd_row) {
+    const T* __restrict src = x + row;
+    T* __restrict even = planes + even_row;
+    T* __restrict odd = planes + odd_row;
+    for (int64_t k = 0; k < kWidth / 2; ++k) {
+      even[k] = src[2 * k];
+      odd[k] = src[2 * k + 1];
     }
+  });
 }
 
 // Writes phase planes back into sample x (C×H×W), dropping the padding. Each element of x lies
@@ -259,29 +266,19 @@ void merge_phases(const T* planes, const ConvShape& s, const Phases& f, T* x) {
   }
 }
 
-// The reverse of split_phases_in_pairs, under the same conditions: each row of x is written
-// whole from its even and odd planes in one pass.
+// The reverse of split_phases_in_pairs: each row of x is written whole from its even and odd
+// plane rows in one pass.
 template <int kWidth, class T>
 void merge_phases_in_pairs(const T* planes, const ConvShape& s, const Phases& f, T* x) {
-  const int64_t pad = s.g.pad_w, cols = f.cols;
-  const int64_t even_phase = pad % 2, odd_phase = (pad + 1) % 2;
-  const int64_t even_shift = pad / 2, odd_shift = (pad + 1) / 2;
-  for (int64_t c = 0; c < s.c; ++c)
-    for (int64_t a = 0; a < f.ph; ++a) {
-      const T* even_row = planes + f.offset(c, a, even_phase) + even_shift;
-      const T* odd_row = planes + f.offset(c, a, odd_phase) + odd_shift;
-      for (int64_t i = 0; i < f.rows; ++i, even_row += cols, odd_row += cols) {
-        const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
-        if (ih < 0 || ih >= s.h) continue;
-        T* __restrict dst = x + (c * s.h + ih) * kWidth;
-        const T* __restrict even = even_row;
-        const T* __restrict odd = odd_row;
-        for (int64_t k = 0; k < kWidth / 2; ++k) {
-          dst[2 * k] = even[k];
-          dst[2 * k + 1] = odd[k];
-        }
-      }
+  for_each_row_in_pairs(s, f, [&](int64_t row, int64_t even_row, int64_t odd_row) {
+    T* __restrict dst = x + row;
+    const T* __restrict even = planes + even_row;
+    const T* __restrict odd = planes + odd_row;
+    for (int64_t k = 0; k < kWidth / 2; ++k) {
+      dst[2 * k] = even[k];
+      dst[2 * k + 1] = odd[k];
     }
+  });
 }
 
 // Unfolds one sample's phase planes into rows of `col` (row stride ld) at columns
