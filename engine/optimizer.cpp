@@ -38,6 +38,50 @@ void check_positive(const char* method, const char* field, double value) {
 }  // namespace
 }  // namespace detail
 
+namespace {
+// The per-element updates, one run of n elements at a time. The constants are members (not
+// references into the caller) and the pointers restrict-qualified parameters, so the
+// compiler knows no store changes a constant or another array, and vectorises the loops.
+template <class T>
+struct AdamRun {
+  T beta1, keep1, beta2, keep2, correction1, correction2, alpha, epsilon, shrink;
+  void operator()(const T* __restrict g, const T* __restrict theta, T* __restrict m,
+                  T* __restrict v, T* __restrict out, int64_t n) const {
+    for (int64_t k = 0; k < n; ++k) {
+      m[k] = beta1 * m[k] + keep1 * g[k];
+      v[k] = beta2 * v[k] + keep2 * (g[k] * g[k]);
+      const T m_hat = m[k] / correction1;
+      const T v_hat = v[k] / correction2;
+      out[k] = shrink * theta[k] - alpha * m_hat / (std::sqrt(v_hat) + epsilon);
+    }
+  }
+};
+
+template <class T>
+struct MomentumRun {
+  T mu, lr;
+  void operator()(const T* __restrict g, const T* __restrict theta, T* __restrict velocity,
+                  T* __restrict out, int64_t n) const {
+    for (int64_t k = 0; k < n; ++k) {
+      velocity[k] = mu * velocity[k] + g[k];
+      out[k] = theta[k] - lr * velocity[k];
+    }
+  }
+};
+
+template <class T>
+struct RmsPropRun {
+  T rho, keep, lr, epsilon;
+  void operator()(const T* __restrict g, const T* __restrict theta, T* __restrict s,
+                  T* __restrict out, int64_t n) const {
+    for (int64_t k = 0; k < n; ++k) {
+      s[k] = rho * s[k] + keep * (g[k] * g[k]);
+      out[k] = theta[k] - lr * g[k] / (std::sqrt(s[k]) + epsilon);
+    }
+  }
+};
+}  // namespace
+
 // ---- the common part ----------------------------------------------------------------------
 
 template <class T>
@@ -84,6 +128,22 @@ void Optimizer<T>::init_state(std::vector<Tensor<T>>& state, const std::vector<T
   if (!state.empty()) return;
   state.reserve(grads.size());
   for (const Tensor<T>& g : grads) state.push_back(Tensor<T>::zeros(g.shape()));
+}
+
+template <class T>
+template <class Update>
+void Optimizer<T>::replace_each(const std::vector<Tensor<T>*>& params, Update&& update) {
+  std::vector<Tensor<T>> fresh;
+  std::vector<int64_t> sizes;
+  fresh.reserve(params.size());
+  for (const Tensor<T>* p : params) {
+    fresh.push_back(Tensor<T>::uninitialised(p->shape()));
+    sizes.push_back(p->numel());
+  }
+  parallel_for_chunks_of(sizes, [&](size_t i, int64_t begin, int64_t end) {
+    update(i, begin, end, fresh[i].mutable_data());
+  });
+  for (size_t i = 0; i < params.size(); ++i) *params[i] = std::move(fresh[i]);
 }
 
 template <class T>
@@ -161,35 +221,20 @@ void Adam<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<Tens
 
   const double t = static_cast<double>(this->steps_ + 1);
   const double lr = this->learning_rate_;
-  const T beta1 = static_cast<T>(options_.beta1), keep1 = static_cast<T>(1 - options_.beta1);
-  const T beta2 = static_cast<T>(options_.beta2), keep2 = static_cast<T>(1 - options_.beta2);
+  AdamRun<T> run;
+  run.beta1 = static_cast<T>(options_.beta1), run.keep1 = static_cast<T>(1 - options_.beta1);
+  run.beta2 = static_cast<T>(options_.beta2), run.keep2 = static_cast<T>(1 - options_.beta2);
   // Bias corrections 1 − β^t, in double (Algorithm 1 of Kingma & Ba 2015).
-  const T correction1 = static_cast<T>(1 - std::pow(options_.beta1, t));
-  const T correction2 = static_cast<T>(1 - std::pow(options_.beta2, t));
-  const T alpha = static_cast<T>(lr);
-  const T epsilon = static_cast<T>(options_.epsilon);
+  run.correction1 = static_cast<T>(1 - std::pow(options_.beta1, t));
+  run.correction2 = static_cast<T>(1 - std::pow(options_.beta2, t));
+  run.alpha = static_cast<T>(lr);
+  run.epsilon = static_cast<T>(options_.epsilon);
   // Decoupled weight decay θ − αλθ written as (1 − αλ)θ; exactly θ when λ = 0.
-  const T shrink = static_cast<T>(1 - lr * options_.decoupled_weight_decay);
-
-  for (size_t i = 0; i < params.size(); ++i) {
-    const int64_t n = grads[i].numel();
-    const T* g = grads[i].data();
-    const T* theta = params[i]->data();
-    T* m = m_[i].mutable_data();
-    T* v = v_[i].mutable_data();
-    Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
-    T* out = fresh.mutable_data();
-    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
-      for (int64_t k = begin; k < end; ++k) {
-        m[k] = beta1 * m[k] + keep1 * g[k];
-        v[k] = beta2 * v[k] + keep2 * (g[k] * g[k]);
-        const T m_hat = m[k] / correction1;
-        const T v_hat = v[k] / correction2;
-        out[k] = shrink * theta[k] - alpha * m_hat / (std::sqrt(v_hat) + epsilon);
-      }
-    });
-    *params[i] = std::move(fresh);
-  }
+  run.shrink = static_cast<T>(1 - lr * options_.decoupled_weight_decay);
+  this->replace_each(params, [&](size_t i, int64_t begin, int64_t end, T* out) {
+    run(grads[i].data() + begin, params[i]->data() + begin, m_[i].mutable_data() + begin,
+        v_[i].mutable_data() + begin, out + begin, end - begin);
+  });
   ++this->steps_;
 }
 
@@ -223,23 +268,11 @@ void MomentumSgd<T>::step(const std::vector<Tensor<T>*>& params,
                           const std::vector<Tensor<T>>& grads) {
   this->check_lists(params, grads, velocity_);
   this->init_state(velocity_, grads);
-  const T mu = static_cast<T>(options_.momentum);
-  const T lr = static_cast<T>(this->learning_rate_);
-  for (size_t i = 0; i < params.size(); ++i) {
-    const int64_t n = grads[i].numel();
-    const T* g = grads[i].data();
-    const T* theta = params[i]->data();
-    T* velocity = velocity_[i].mutable_data();
-    Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
-    T* out = fresh.mutable_data();
-    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
-      for (int64_t k = begin; k < end; ++k) {
-        velocity[k] = mu * velocity[k] + g[k];
-        out[k] = theta[k] - lr * velocity[k];
-      }
-    });
-    *params[i] = std::move(fresh);
-  }
+  const MomentumRun<T> run{static_cast<T>(options_.momentum), static_cast<T>(this->learning_rate_)};
+  this->replace_each(params, [&](size_t i, int64_t begin, int64_t end, T* out) {
+    run(grads[i].data() + begin, params[i]->data() + begin, velocity_[i].mutable_data() + begin,
+        out + begin, end - begin);
+  });
   ++this->steps_;
 }
 
@@ -270,24 +303,12 @@ template <class T>
 void RmsProp<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<Tensor<T>>& grads) {
   this->check_lists(params, grads, mean_square_);
   this->init_state(mean_square_, grads);
-  const T rho = static_cast<T>(options_.decay), keep = static_cast<T>(1 - options_.decay);
-  const T lr = static_cast<T>(this->learning_rate_);
-  const T epsilon = static_cast<T>(options_.epsilon);
-  for (size_t i = 0; i < params.size(); ++i) {
-    const int64_t n = grads[i].numel();
-    const T* g = grads[i].data();
-    const T* theta = params[i]->data();
-    T* s = mean_square_[i].mutable_data();
-    Tensor<T> fresh = Tensor<T>::uninitialised(params[i]->shape());
-    T* out = fresh.mutable_data();
-    parallel_for_chunks(n, [&](int64_t begin, int64_t end) {
-      for (int64_t k = begin; k < end; ++k) {
-        s[k] = rho * s[k] + keep * (g[k] * g[k]);
-        out[k] = theta[k] - lr * g[k] / (std::sqrt(s[k]) + epsilon);
-      }
-    });
-    *params[i] = std::move(fresh);
-  }
+  const RmsPropRun<T> run{static_cast<T>(options_.decay), static_cast<T>(1 - options_.decay),
+                          static_cast<T>(this->learning_rate_), static_cast<T>(options_.epsilon)};
+  this->replace_each(params, [&](size_t i, int64_t begin, int64_t end, T* out) {
+    run(grads[i].data() + begin, params[i]->data() + begin, mean_square_[i].mutable_data() + begin,
+        out + begin, end - begin);
+  });
   ++this->steps_;
 }
 

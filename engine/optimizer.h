@@ -7,7 +7,7 @@
 // storage (a recorded tape, a snapshot) keeps seeing the old values. The optimiser's own
 // state is private to it and is updated in place.
 //
-// Elementwise work runs through parallel_for_chunks (parallel.h); every element is
+// Elementwise work runs through parallel_for_chunks_of (parallel.h); every element is
 // computed independently, so results are bit-identical whatever the thread count.
 //
 // Thread safety: one optimiser must not be used from two threads at once; distinct
@@ -60,6 +60,11 @@ class Optimizer {
                    const std::vector<Tensor<T>>& state) const;
   // Zero tensors shaped like grads, when `state` is still empty.
   static void init_state(std::vector<Tensor<T>>& state, const std::vector<Tensor<T>>& grads);
+  // Replaces each *params[i] by a fresh tensor whose elements begin..end-1 are written by
+  // update(i, begin, end, fresh data); all parameters in one parallel region
+  // (parallel_for_chunks_of), which also spreads the many small ones over the threads.
+  template <class Update>
+  static void replace_each(const std::vector<Tensor<T>*>& params, Update&& update);
 
   // Save/load of what every method has: method name, steps, learning rate and the number of
   // parameters with state. read_common checks them and changes nothing; commit_common

@@ -11,7 +11,9 @@
 // while kernels run.
 #pragma once
 
+#include <algorithm>
 #include <cstdint>
+#include <vector>
 
 namespace spar {
 
@@ -40,6 +42,29 @@ void parallel_for_chunks(int64_t n, Body&& body) {
   const int64_t chunks = (n + kParallelGrain - 1) / kParallelGrain;
   parallel_for(chunks, true, [&](int64_t c) {
     body(c * kParallelGrain, n < (c + 1) * kParallelGrain ? n : (c + 1) * kParallelGrain);
+  });
+}
+
+// Runs body(t, begin, end) over the elements of several arrays, sizes[t] elements each, as
+// if they were laid end to end: fixed chunks of kParallelGrain of that joint range (a chunk
+// that spans arrays calls body once per piece), all in one parallel region. For work over a
+// list of small and large tensors, such as an optimiser's update of every parameter.
+template <class Body>
+void parallel_for_chunks_of(const std::vector<int64_t>& sizes, Body&& body) {
+  std::vector<int64_t> start(sizes.size() + 1, 0);  // start[t]: first joint index of array t
+  for (size_t t = 0; t < sizes.size(); ++t) start[t + 1] = start[t] + sizes[t];
+  const int64_t total = start.back(), chunks = (total + kParallelGrain - 1) / kParallelGrain;
+  parallel_for(chunks, true, [&](int64_t c) {
+    int64_t lo = c * kParallelGrain;
+    const int64_t hi = std::min(total, lo + kParallelGrain);
+    // The last array starting at or before lo (past any empty arrays that start there too).
+    auto t =
+        static_cast<size_t>(std::upper_bound(start.begin(), start.end(), lo) - start.begin() - 1);
+    for (; lo < hi; ++t) {
+      const int64_t end = std::min(hi, start[t + 1]);
+      if (end > lo) body(t, lo - start[t], end - start[t]);
+      lo = end;
+    }
   });
 }
 

@@ -483,7 +483,8 @@ TEST_CASE("option values outside their ranges raise kBadArgument", "[optimizer]"
 TEMPLATE_TEST_CASE("large tensors (threaded path) match small ones (serial path) bit for bit",
                    "[optimizer]", float, double) {
   using T = TestType;
-  // 4 × 20000 elements: one tensor above the 2^15 threshold versus four below it.
+  // 4 × 20000 elements: one tensor above the 2^15 threshold versus four below it, whose joint
+  // chunks (parallel_for_chunks_of) cross from one tensor into the next.
   const int64_t part = 20000, n = 4 * part;
   std::vector<T> theta(n), grad(n);
   for (int64_t i = 0; i < n; ++i) {

@@ -81,3 +81,31 @@ TEST_CASE("the panelled matrix product agrees with a plain triple loop", "[paral
     }
   CHECK(worst < 1e-5);  // 45 float products of magnitude ≤ 1: rounding ≤ 45·2⁻²⁴ ≈ 3e-6
 }
+
+TEST_CASE("chunks over several arrays visit every element once, in range", "[parallel]") {
+  // Empty arrays first, between and last; arrays shorter and longer than a chunk; a chunk
+  // boundary inside an array and one exactly at an array's end.
+  const std::vector<int64_t> sizes = {0, 5, 0, 40000, kParallelGrain * 2 - 40005, 0, 70000, 0};
+  for (int threads : {1, 2}) {
+    const int previous = thread_count();
+    set_thread_count(threads);
+    std::vector<std::vector<int>> seen;
+    for (int64_t n : sizes) seen.emplace_back(static_cast<size_t>(n), 0);
+    std::vector<int> bad(1, 0);
+    parallel_for_chunks_of(sizes, [&](size_t t, int64_t begin, int64_t end) {
+      if (t >= sizes.size() || begin < 0 || end > sizes[t] || begin >= end) {
+        bad[0] = 1;  // only ever set to 1, so a race cannot hide it
+        return;
+      }
+      for (int64_t k = begin; k < end; ++k) ++seen[t][static_cast<size_t>(k)];
+    });
+    set_thread_count(previous);
+    INFO(threads << " threads");
+    CHECK(bad[0] == 0);
+    for (size_t t = 0; t < sizes.size(); ++t)
+      for (int64_t k = 0; k < sizes[t]; ++k) {
+        INFO("array " << t << ", element " << k);
+        REQUIRE(seen[t][static_cast<size_t>(k)] == 1);
+      }
+  }
+}
