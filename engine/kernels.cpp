@@ -483,20 +483,32 @@ Tensor<T> matrix_product(const Tensor<T>& a, const Tensor<T>& b, bool ta, bool t
   }
   const Map A(a.data(), a.dim(0), a.dim(1));
   const Map B(b.data(), b.dim(0), b.dim(1));
-  // Fixed row panels: their number depends only on the shapes (parallel.h). Each panel is
-  // one sequential Eigen GEMM; packing B once per panel costs about 1/rows of the work.
-  const double flops = 2.0 * m * n * ka;
-  // At least 128 rows each (several of Eigen's 48-row AVX-512 micro-panels), at most 8,
-  // and serial below about 4 MFLOP per panel.
-  int64_t panels = std::min<int64_t>(
-      {8, std::max<int64_t>(1, m / 128), std::max<int64_t>(1, static_cast<int64_t>(flops / 4e6))});
+  // Fixed panels of the result: their number depends only on the shapes (parallel.h). Each
+  // panel is one sequential Eigen GEMM. Row panels when the result has at least as many rows
+  // as columns (B is packed once per panel, about 1/rows of the work), else column panels (A
+  // is packed once per panel), so that short, wide products such as a dense layer's
+  // [batch × features] output are split too. At least 128 rows or columns each (several of
+  // Eigen's 48 × 4 AVX-512 register blocks), at most 8, and serial below about 4 MFLOP each.
+  const bool by_rows = m >= n;
+  const int64_t extent = by_rows ? m : n;
+  const int64_t panels =
+      std::min<int64_t>({8, std::max<int64_t>(1, extent / 128),
+                         std::max<int64_t>(1, static_cast<int64_t>(2.0 * m * n * ka / 4e6))});
   parallel_for(panels, true, [&](int64_t p) {
-    const int64_t r0 = m * p / panels, rows = m * (p + 1) / panels - r0;
-    auto dst = C.middleRows(r0, rows);
-    if (!ta && !tb) dst.noalias() = A.middleRows(r0, rows) * B;
-    if (!ta && tb) dst.noalias() = A.middleRows(r0, rows) * B.transpose();
-    if (ta && !tb) dst.noalias() = A.middleCols(r0, rows).transpose() * B;
-    if (ta && tb) dst.noalias() = A.middleCols(r0, rows).transpose() * B.transpose();
+    const int64_t first = extent * p / panels, count = extent * (p + 1) / panels - first;
+    if (by_rows) {
+      auto dst = C.middleRows(first, count);
+      if (!ta && !tb) dst.noalias() = A.middleRows(first, count) * B;
+      if (!ta && tb) dst.noalias() = A.middleRows(first, count) * B.transpose();
+      if (ta && !tb) dst.noalias() = A.middleCols(first, count).transpose() * B;
+      if (ta && tb) dst.noalias() = A.middleCols(first, count).transpose() * B.transpose();
+    } else {
+      auto dst = C.middleCols(first, count);
+      if (!ta && !tb) dst.noalias() = A * B.middleCols(first, count);
+      if (!ta && tb) dst.noalias() = A * B.middleRows(first, count).transpose();
+      if (ta && !tb) dst.noalias() = A.transpose() * B.middleCols(first, count);
+      if (ta && tb) dst.noalias() = A.transpose() * B.middleRows(first, count).transpose();
+    }
   });
   return c;
 }

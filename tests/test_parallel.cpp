@@ -1,6 +1,7 @@
 // Parallel kernels give bit-identical results with 1 and 2 threads (engine/parallel.h):
 // elementwise work, broadcasting, every reduction pattern, and the matrix product.
 #include <catch2/catch.hpp>
+#include <cmath>
 #include <cstring>
 #include <functional>
 
@@ -58,6 +59,10 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
   check_thread_independent("matmul", [&] { return kernels::matrix_product(a, b, false, false); });
   check_thread_independent("matmul aᵀ bᵀ",
                            [&] { return kernels::matrix_product(b, a, true, true); });
+  // Fewer rows than columns: column panels.
+  const F wide = rng.uniform<float>({320, 2000}, -1, 1);
+  check_thread_independent("matmul, wide result",
+                           [&] { return kernels::matrix_product(b, wide, true, false); });
   check_thread_independent("normal draws", [] { return Rng(5, 5).normal<float>({1 << 18}); });
   check_thread_independent("a whole backward pass", [&] {
     Tape<float> tape;
@@ -68,18 +73,40 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
 }
 
 TEST_CASE("the panelled matrix product agrees with a plain triple loop", "[parallel]") {
-  // Reference: the definition C_ij = Σ_k A_ik B_kj, accumulated in double.
+  // Reference: the definition C_ij = Σ_k A_ik B_kj, accumulated in double. Shapes: one panel;
+  // row panels (more rows than columns); column panels (a dense layer's short, wide result);
+  // each with every combination of transposed operands.
   Rng rng(12, 1);
-  const F a = rng.uniform<float>({67, 45}, -1, 1), b = rng.uniform<float>({45, 131}, -1, 1);
-  const F c = kernels::matrix_product(a, b, false, false);
-  double worst = 0;
-  for (int i = 0; i < 67; ++i)
-    for (int j = 0; j < 131; ++j) {
-      double s = 0;
-      for (int k = 0; k < 45; ++k) s += double(a.at({i, k})) * b.at({k, j});
-      worst = std::max(worst, std::abs(s - c.at({i, j})));
+  struct Case {
+    int64_t m, k, n;
+  };
+  for (const Case& s : {Case{67, 45, 131}, Case{700, 64, 300}, Case{64, 64, 3136}}) {
+    const F a = rng.uniform<float>({s.m, s.k}, -1, 1), b = rng.uniform<float>({s.k, s.n}, -1, 1);
+    const F at = kernels::permute(a, {1, 0}), bt = kernels::permute(b, {1, 0});
+    for (int flags = 0; flags < 4; ++flags) {
+      const bool ta = flags & 1, tb = flags & 2;
+      const F c = kernels::matrix_product(ta ? at : a, tb ? bt : b, ta, tb);
+      REQUIRE(c.shape() == Shape{s.m, s.n});
+      // A float dot product of K terms is within γ_K·Σ|a_ik·b_kj| of the exact value, γ_K =
+      // K·u/(1 − K·u), u = 2⁻²⁴ (Higham, Accuracy and Stability of Numerical Algorithms,
+      // 2nd ed., section 3.1; from memory), whatever the order of the additions.
+      const double u = std::ldexp(1.0, -24), gamma = s.k * u / (1 - s.k * u);
+      double worst = 0;  // largest |error| / bound
+      for (int64_t i = 0; i < s.m; ++i)
+        for (int64_t j = 0; j < s.n; ++j) {
+          double sum = 0, magnitude = 0;
+          for (int64_t k = 0; k < s.k; ++k) {
+            const double term = double(a.at({i, k})) * b.at({k, j});
+            sum += term;
+            magnitude += std::abs(term);
+          }
+          worst = std::max(worst, std::abs(sum - c.at({i, j})) / (gamma * magnitude));
+        }
+      INFO(s.m << "×" << s.k << "·" << s.k << "×" << s.n << (ta ? ", A transposed" : "")
+               << (tb ? ", B transposed" : ""));
+      CHECK(worst <= 1);
     }
-  CHECK(worst < 1e-5);  // 45 float products of magnitude ≤ 1: rounding ≤ 45·2⁻²⁴ ≈ 3e-6
+  }
 }
 
 TEST_CASE("chunks over several arrays visit every element once, in range", "[parallel]") {
