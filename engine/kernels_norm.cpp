@@ -2,11 +2,18 @@
 // normalised output, two for the adjoint, instead of the eight and twenty passes over the
 // data that the same formulas take as separate elementwise operations.
 //
-// x is viewed as [N, C, P] (P = H·W, or 1 for [N, C]): channel c is N runs of P values. Each
-// channel is one task; its sums are accumulated in double in a fixed order
-// (kernels_detail.h), so results are bit-identical for any thread count.
+// x is viewed as [N, C, P] (P = H·W, or 1 for [N, C]): channel c is N runs of P values. The
+// work is split by samples, not channels: fixed slabs of the batch (at most kSlabs, the same
+// for any thread count), so that each thread reads the samples it wrote in the kernel before
+// (a convolution over groups of samples, an elementwise map over chunks of the flat tensor).
+// Split by channels, every thread read every sample, and on two cores the statistics took
+// longer with two threads than with one: the cache lines had just been written by the other
+// core. Each slab sums its samples per channel in double (kernels_detail.h), and the slab
+// sums are added in slab order, so results are bit-identical for any thread count.
+#include <algorithm>
 #include <cmath>
 #include <string>
+#include <vector>
 
 #include "engine/error.h"
 #include "engine/kernels.h"
@@ -35,10 +42,48 @@ void check_channel_vector(const Shape& s, int64_t channels, const char* what, co
                                     ", expected [" + std::to_string(channels) + "]");
 }
 
-// Runs body(c) for every channel, in parallel when the tensor is large.
+// out = (in − mean)·a + b over one run of n values.
+template <class T>
+void affine_run(const T* __restrict in, T* __restrict out, int64_t n, T mean, T a, T b) {
+  for (int64_t k = 0; k < n; ++k) out[k] = (in[k] - mean) * a + b;
+}
+
+// gx = kg·g − off − kx·(x − mean) over one run of n values.
+template <class T>
+void adjoint_run(const T* __restrict g, const T* __restrict x, T* __restrict gx, int64_t n, T kg,
+                 T off, T kx, T mean) {
+  for (int64_t k = 0; k < n; ++k) gx[k] = kg * g[k] - off - kx * (x[k] - mean);
+}
+
+// Slabs of samples per kernel: enough for up to 8 threads to share, few enough that the
+// per-slab sums are cheap to add up.
+constexpr int64_t kSlabs = 8;
+
+// Runs body(i) for every sample i of x, slab by slab; slabs in parallel when x is large.
 template <class Body>
-void for_each_channel(const ChannelLayout& l, Body&& body) {
-  parallel_for(l.c, l.n * l.c * l.p >= kParallelGrain, body);
+void for_each_sample(const ChannelLayout& l, Body&& body) {
+  const int64_t slabs = std::min(l.n, kSlabs);
+  parallel_for(slabs, l.n * l.c * l.p >= kParallelGrain, [&](int64_t k) {
+    for (int64_t i = l.n * k / slabs; i < l.n * (k + 1) / slabs; ++i) body(i);
+  });
+}
+
+// kSums sums per channel over all samples: add(i, c, sums) adds sample i's terms for channel c
+// to sums[0..kSums). Returns them channel-major, sums[c·kSums + j]. Each slab accumulates its
+// own copy (slab k's samples in order), then the copies are added in slab order.
+template <int kSums, class Add>
+std::vector<double> channel_sums(const ChannelLayout& l, Add&& add) {
+  const int64_t slabs = std::min(l.n, kSlabs), width = l.c * kSums;
+  std::vector<double> partial(static_cast<size_t>(slabs * width), 0.0);
+  parallel_for(slabs, l.n * l.c * l.p >= kParallelGrain, [&](int64_t k) {
+    double* sums = partial.data() + k * width;
+    for (int64_t i = l.n * k / slabs; i < l.n * (k + 1) / slabs; ++i)
+      for (int64_t c = 0; c < l.c; ++c) add(i, c, sums + c * kSums);
+  });
+  for (int64_t k = 1; k < slabs; ++k)
+    for (int64_t j = 0; j < width; ++j) partial[j] += partial[k * width + j];
+  partial.resize(static_cast<size_t>(width));
+  return partial;
 }
 
 }  // namespace
@@ -48,28 +93,27 @@ Tensor<T> channel_statistics(const Tensor<T>& x) {
   const ChannelLayout l = channel_layout(x.shape(), "batch statistics");
   if (l.per_channel() < 1)
     raise(ErrorKind::kBadShape, "batch statistics: no values per channel in " + x.shape().str());
-  Tensor<T> st = Tensor<T>::uninitialised({2, l.c});
   const T* px = x.data();
-  T* out = st.mutable_data();
   const double m = static_cast<double>(l.per_channel());
-  for_each_channel(l, [&](int64_t c) {
-    double sum = 0;
-    for (int64_t i = 0; i < l.n; ++i) {
-      const T* run = px + (i * l.c + c) * l.p;
-      sum += detail::lane_sum(l.p, [run](int64_t k) { return static_cast<double>(run[k]); });
-    }
-    const double mean = sum / m;
-    double squares = 0;  // Σ (x − mean)², the two-pass form: no cancellation
-    for (int64_t i = 0; i < l.n; ++i) {
-      const T* run = px + (i * l.c + c) * l.p;
-      squares += detail::lane_sum(l.p, [run, mean](int64_t k) {
-        const double d = static_cast<double>(run[k]) - mean;
-        return d * d;
-      });
-    }
-    out[c] = static_cast<T>(mean);
-    out[l.c + c] = static_cast<T>(squares / m);
+  std::vector<double> mean = channel_sums<1>(l, [&](int64_t i, int64_t c, double* sums) {
+    const T* run = px + (i * l.c + c) * l.p;
+    sums[0] += detail::lane_sum(l.p, [run](int64_t k) { return static_cast<double>(run[k]); });
   });
+  for (double& v : mean) v /= m;
+  // Σ (x − mean)², the two-pass form: no cancellation.
+  const std::vector<double> squares = channel_sums<1>(l, [&](int64_t i, int64_t c, double* sums) {
+    const T* run = px + (i * l.c + c) * l.p;
+    const double mu = mean[static_cast<size_t>(c)];
+    sums[0] += detail::lane_sum(l.p, [run, mu](int64_t k) {
+      const double d = static_cast<double>(run[k]) - mu;
+      return d * d;
+    });
+  });
+  Tensor<T> st = Tensor<T>::uninitialised({2, l.c});
+  for (int64_t c = 0; c < l.c; ++c) {
+    st.mutable_data()[c] = static_cast<T>(mean[static_cast<size_t>(c)]);
+    st.mutable_data()[l.c + c] = static_cast<T>(squares[static_cast<size_t>(c)] / m);
+  }
   return st;
 }
 
@@ -84,21 +128,19 @@ Tensor<T> normalise_channels(const Tensor<T>& x, const Tensor<T>& statistics,
                                     std::to_string(l.c) + "]");
   check_channel_vector(scale.shape(), l.c, "scale", op);
   check_channel_vector(shift.shape(), l.c, "shift", op);
-  Tensor<T> y = Tensor<T>::uninitialised(x.shape());
-  const T* px = x.data();
-  T* py = y.mutable_data();
-  for_each_channel(l, [&](int64_t c) {
-    // y = (x − mean)·a + shift with a = scale/√(variance + ε).
-    const T mean = statistics.data()[c];
-    const T a =
+  // y = (x − mean)·a + shift with a = scale/√(variance + ε), per channel.
+  std::vector<T> a(static_cast<size_t>(l.c));
+  for (int64_t c = 0; c < l.c; ++c)
+    a[static_cast<size_t>(c)] =
         static_cast<T>(static_cast<double>(scale.data()[c]) /
                        std::sqrt(static_cast<double>(statistics.data()[l.c + c]) + epsilon));
-    const T b = shift.data()[c];
-    for (int64_t i = 0; i < l.n; ++i) {
-      const T* __restrict in = px + (i * l.c + c) * l.p;
-      T* __restrict out = py + (i * l.c + c) * l.p;
-      for (int64_t k = 0; k < l.p; ++k) out[k] = (in[k] - mean) * a + b;
-    }
+  Tensor<T> y = Tensor<T>::uninitialised(x.shape());
+  const T *px = x.data(), *mean = statistics.data(), *b = shift.data();
+  T* py = y.mutable_data();
+  for_each_sample(l, [&](int64_t i) {
+    for (int64_t c = 0; c < l.c; ++c)
+      affine_run(px + (i * l.c + c) * l.p, py + (i * l.c + c) * l.p, l.p, mean[c],
+                 a[static_cast<size_t>(c)], b[c]);
   });
   return y;
 }
@@ -113,35 +155,40 @@ NormaliseGradients<T> normalise_channels_adjoint(const Tensor<T>& g, const Tenso
     raise(ErrorKind::kBadShape, std::string(op) + ": gradient " + g.shape().str() + " and input " +
                                     x.shape().str() + " differ");
   check_channel_vector(scale.shape(), l.c, "scale", op);
+  const T *px = x.data(), *pg = g.data(), *ps = statistics.data();
+  // Σ g and Σ g·(x − mean) per channel.
+  const std::vector<double> sums = channel_sums<2>(l, [&](int64_t i, int64_t c, double* out) {
+    const T* gr = pg + (i * l.c + c) * l.p;
+    const T* xr = px + (i * l.c + c) * l.p;
+    const double mean = ps[c];
+    out[0] += detail::lane_sum(l.p, [gr](int64_t k) { return static_cast<double>(gr[k]); });
+    out[1] += detail::lane_sum(l.p, [gr, xr, mean](int64_t k) {
+      return static_cast<double>(gr[k]) * (static_cast<double>(xr[k]) - mean);
+    });
+  });
   NormaliseGradients<T> r{Tensor<T>::uninitialised(x.shape()), Tensor<T>::uninitialised({l.c}),
                           Tensor<T>::uninitialised({l.c})};
-  const T *px = x.data(), *pg = g.data();
-  T* pgx = r.x.mutable_data();
+  // gx = k·(g − (Σg + x̂·Σgx̂)/m) = k·g − k·Σg/m − k·(Σgx̂/m)·inv·(x − mean), with
+  // inv = 1/√(variance + ε), x̂ = (x − mean)·inv and k = scale·inv.
   const double m = static_cast<double>(l.per_channel());
-  for_each_channel(l, [&](int64_t c) {
-    const double mean = statistics.data()[c];
-    const double inv = 1 / std::sqrt(static_cast<double>(statistics.data()[l.c + c]) + epsilon);
-    double sum_g = 0, sum_gx = 0;  // Σ g and Σ g·x̂
-    for (int64_t i = 0; i < l.n; ++i) {
-      const T* gr = pg + (i * l.c + c) * l.p;
-      const T* xr = px + (i * l.c + c) * l.p;
-      sum_g += detail::lane_sum(l.p, [gr](int64_t k) { return static_cast<double>(gr[k]); });
-      sum_gx += detail::lane_sum(l.p, [gr, xr, mean](int64_t k) {
-        return static_cast<double>(gr[k]) * (static_cast<double>(xr[k]) - mean);
-      });
-    }
-    sum_gx *= inv;
+  std::vector<T> kg(static_cast<size_t>(l.c)), off(kg), kx(kg);
+  for (int64_t c = 0; c < l.c; ++c) {
+    const auto u = static_cast<size_t>(c);
+    const double inv = 1 / std::sqrt(static_cast<double>(ps[l.c + c]) + epsilon);
+    const double sum_g = sums[2 * u], sum_gx = sums[2 * u + 1] * inv;
     r.shift.mutable_data()[c] = static_cast<T>(sum_g);
     r.scale.mutable_data()[c] = static_cast<T>(sum_gx);
-    // gx = k·(g − (Σg + x̂·Σgx̂)/m) = k·g − k·Σg/m − k·(Σgx̂/m)·inv·(x − mean)
     const double k = static_cast<double>(scale.data()[c]) * inv;
-    const T kg = static_cast<T>(k), off = static_cast<T>(k * sum_g / m),
-            kx = static_cast<T>(k * sum_gx / m * inv), mu = static_cast<T>(mean);
-    for (int64_t i = 0; i < l.n; ++i) {
-      const T* __restrict gr = pg + (i * l.c + c) * l.p;
-      const T* __restrict xr = px + (i * l.c + c) * l.p;
-      T* __restrict out = pgx + (i * l.c + c) * l.p;
-      for (int64_t q = 0; q < l.p; ++q) out[q] = kg * gr[q] - off - kx * (xr[q] - mu);
+    kg[u] = static_cast<T>(k);
+    off[u] = static_cast<T>(k * sum_g / m);
+    kx[u] = static_cast<T>(k * sum_gx / m * inv);
+  }
+  T* pgx = r.x.mutable_data();
+  for_each_sample(l, [&](int64_t i) {
+    for (int64_t c = 0; c < l.c; ++c) {
+      const auto u = static_cast<size_t>(c);
+      const int64_t at = (i * l.c + c) * l.p;
+      adjoint_run(pg + at, px + at, pgx + at, l.p, kg[u], off[u], kx[u], ps[c]);
     }
   });
   return r;

@@ -63,6 +63,18 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
   const F wide = rng.uniform<float>({320, 2000}, -1, 1);
   check_thread_independent("matmul, wide result",
                            [&] { return kernels::matrix_product(b, wide, true, false); });
+  const F gain = rng.uniform<float>({32}, 0.5, 2), offset = rng.uniform<float>({32}, -1, 1);
+  const F statistics = kernels::channel_statistics(big);
+  check_thread_independent("batch statistics", [&] { return kernels::channel_statistics(big); });
+  check_thread_independent("batch normalisation", [&] {
+    return kernels::normalise_channels(big, statistics, gain, offset, 1e-5);
+  });
+  for (int part = 0; part < 3; ++part)
+    check_thread_independent("batch normalisation adjoint, part " + std::to_string(part), [&] {
+      auto r = kernels::normalise_channels_adjoint(kernels::scale(big, 0.5), big, statistics, gain,
+                                                   1e-5);
+      return part == 0 ? r.x : part == 1 ? r.scale : r.shift;
+    });
   check_thread_independent("normal draws", [] { return Rng(5, 5).normal<float>({1 << 18}); });
   check_thread_independent("a whole backward pass", [&] {
     Tape<float> tape;
