@@ -1,6 +1,7 @@
-// Batch normalisation kernels (Ioffe & Szegedy 2015): one pass for the statistics, one for the
-// normalised output, two for the adjoint, instead of the eight and twenty passes over the
-// data that the same formulas take as separate elementwise operations.
+// Batch normalisation kernels (Ioffe & Szegedy 2015): two passes for the statistics (the mean,
+// then squares about it), one for the normalised output, two for the adjoint, instead of the
+// eight and twenty passes over the data that the same formulas take as separate elementwise
+// operations.
 //
 // x is viewed as [N, C, P] (P = H·W, or 1 for [N, C]): channel c is N runs of P values. The
 // work is split by samples, not channels: fixed slabs of the batch (at most kSlabs, the same
@@ -59,12 +60,16 @@ void adjoint_run(const T* __restrict g, const T* __restrict x, T* __restrict gx,
 // per-slab sums are cheap to add up.
 constexpr int64_t kSlabs = 8;
 
-// Runs body(i) for every sample i of x, slab by slab; slabs in parallel when x is large.
+int64_t slab_count(const ChannelLayout& l) {
+  return std::min(l.n, kSlabs);
+}
+
+// Runs body(slab k, its samples i in order) for every slab; slabs in parallel when x is large.
 template <class Body>
-void for_each_sample(const ChannelLayout& l, Body&& body) {
-  const int64_t slabs = std::min(l.n, kSlabs);
+void for_each_slab(const ChannelLayout& l, Body&& body) {
+  const int64_t slabs = slab_count(l);
   parallel_for(slabs, l.n * l.c * l.p >= kParallelGrain, [&](int64_t k) {
-    for (int64_t i = l.n * k / slabs; i < l.n * (k + 1) / slabs; ++i) body(i);
+    for (int64_t i = l.n * k / slabs; i < l.n * (k + 1) / slabs; ++i) body(k, i);
   });
 }
 
@@ -73,12 +78,11 @@ void for_each_sample(const ChannelLayout& l, Body&& body) {
 // own copy (slab k's samples in order), then the copies are added in slab order.
 template <int kSums, class Add>
 std::vector<double> channel_sums(const ChannelLayout& l, Add&& add) {
-  const int64_t slabs = std::min(l.n, kSlabs), width = l.c * kSums;
+  const int64_t slabs = slab_count(l), width = l.c * kSums;
   std::vector<double> partial(static_cast<size_t>(slabs * width), 0.0);
-  parallel_for(slabs, l.n * l.c * l.p >= kParallelGrain, [&](int64_t k) {
+  for_each_slab(l, [&](int64_t k, int64_t i) {
     double* sums = partial.data() + k * width;
-    for (int64_t i = l.n * k / slabs; i < l.n * (k + 1) / slabs; ++i)
-      for (int64_t c = 0; c < l.c; ++c) add(i, c, sums + c * kSums);
+    for (int64_t c = 0; c < l.c; ++c) add(i, c, sums + c * kSums);
   });
   for (int64_t k = 1; k < slabs; ++k)
     for (int64_t j = 0; j < width; ++j) partial[j] += partial[k * width + j];
@@ -137,7 +141,7 @@ Tensor<T> normalise_channels(const Tensor<T>& x, const Tensor<T>& statistics,
   Tensor<T> y = Tensor<T>::uninitialised(x.shape());
   const T *px = x.data(), *mean = statistics.data(), *b = shift.data();
   T* py = y.mutable_data();
-  for_each_sample(l, [&](int64_t i) {
+  for_each_slab(l, [&](int64_t, int64_t i) {
     for (int64_t c = 0; c < l.c; ++c)
       affine_run(px + (i * l.c + c) * l.p, py + (i * l.c + c) * l.p, l.p, mean[c],
                  a[static_cast<size_t>(c)], b[c]);
@@ -184,7 +188,7 @@ NormaliseGradients<T> normalise_channels_adjoint(const Tensor<T>& g, const Tenso
     kx[u] = static_cast<T>(k * sum_gx / m * inv);
   }
   T* pgx = r.x.mutable_data();
-  for_each_sample(l, [&](int64_t i) {
+  for_each_slab(l, [&](int64_t, int64_t i) {
     for (int64_t c = 0; c < l.c; ++c) {
       const auto u = static_cast<size_t>(c);
       const int64_t at = (i * l.c + c) * l.p;
