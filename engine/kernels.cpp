@@ -484,16 +484,21 @@ Tensor<T> matrix_product(const Tensor<T>& a, const Tensor<T>& b, bool ta, bool t
   const Map A(a.data(), a.dim(0), a.dim(1));
   const Map B(b.data(), b.dim(0), b.dim(1));
   // Fixed panels of the result: their number depends only on the shapes (parallel.h). Each
-  // panel is one sequential Eigen GEMM. Row panels when the result has at least as many rows
-  // as columns (B is packed once per panel, about 1/rows of the work), else column panels (A
-  // is packed once per panel), so that short, wide products such as a dense layer's
-  // [batch × features] output are split too. At least 128 rows or columns each (several of
-  // Eigen's 48 × 4 AVX-512 register blocks), at most 8, and serial below about 4 MFLOP each.
-  const bool by_rows = m >= n;
+  // panel is one sequential Eigen GEMM; at most 8, and serial below about 4 MFLOP each.
+  // Row panels where possible: a result's rows are usually samples, and each thread then
+  // writes the samples the kernels before and after it work on (docs/threading.md). At least
+  // 128 rows each (several of Eigen's 48 × 4 AVX-512 register blocks; B is packed once per
+  // panel, about 1/rows of the work), or 16 for results under 256 rows, such as a dense
+  // layer's [64, 3136] output (4 panels of 16 rows took 131 µs on two threads, 6 column
+  // panels 140 µs and one panel 211 µs). Column panels only when there are too few rows to
+  // split (fewer than 32) and many columns.
+  const int64_t flop_panels =
+      std::max<int64_t>(1, std::min<int64_t>(8, static_cast<int64_t>(2.0 * m * n * ka / 4e6)));
+  const int64_t row_panels = std::min(flop_panels, std::max<int64_t>(1, m / (m >= 256 ? 128 : 16)));
+  const bool by_rows = row_panels > 1 || n <= m;
   const int64_t extent = by_rows ? m : n;
   const int64_t panels =
-      std::min<int64_t>({8, std::max<int64_t>(1, extent / 128),
-                         std::max<int64_t>(1, static_cast<int64_t>(2.0 * m * n * ka / 4e6))});
+      by_rows ? row_panels : std::min(flop_panels, std::max<int64_t>(1, n / 128));
   parallel_for(panels, true, [&](int64_t p) {
     const int64_t first = extent * p / panels, count = extent * (p + 1) / panels - first;
     if (by_rows) {

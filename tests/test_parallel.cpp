@@ -59,10 +59,13 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
   check_thread_independent("matmul", [&] { return kernels::matrix_product(a, b, false, false); });
   check_thread_independent("matmul aᵀ bᵀ",
                            [&] { return kernels::matrix_product(b, a, true, true); });
-  // Fewer rows than columns: column panels.
-  const F wide = rng.uniform<float>({320, 2000}, -1, 1);
-  check_thread_independent("matmul, wide result",
+  // Row panels of 16 rows (a result under 256 rows), and column panels (under 32 rows).
+  const F wide = rng.uniform<float>({320, 2000}, -1, 1),
+          narrow = rng.uniform<float>({320, 16}, -1, 1);
+  check_thread_independent("matmul, short result",
                            [&] { return kernels::matrix_product(b, wide, true, false); });
+  check_thread_independent("matmul, wide result",
+                           [&] { return kernels::matrix_product(narrow, wide, true, false); });
   const F gain = rng.uniform<float>({32}, 0.5, 2), offset = rng.uniform<float>({32}, -1, 1);
   const F statistics = kernels::channel_statistics(big);
   check_thread_independent("batch statistics", [&] { return kernels::channel_statistics(big); });
@@ -86,13 +89,15 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
 
 TEST_CASE("the panelled matrix product agrees with a plain triple loop", "[parallel]") {
   // Reference: the definition C_ij = Σ_k A_ik B_kj, accumulated in double. Shapes: one panel;
-  // row panels (more rows than columns); column panels (a dense layer's short, wide result);
-  // each with every combination of transposed operands.
+  // row panels of at least 128 rows; row panels of 16 rows (a dense layer's [64, 3136]
+  // result); column panels (a result of 16 rows); each with every combination of transposed
+  // operands.
   Rng rng(12, 1);
   struct Case {
     int64_t m, k, n;
   };
-  for (const Case& s : {Case{67, 45, 131}, Case{700, 64, 300}, Case{64, 64, 3136}}) {
+  for (const Case& s :
+       {Case{67, 45, 131}, Case{700, 64, 300}, Case{64, 64, 3136}, Case{16, 256, 4000}}) {
     const F a = rng.uniform<float>({s.m, s.k}, -1, 1), b = rng.uniform<float>({s.k, s.n}, -1, 1);
     const F at = kernels::permute(a, {1, 0}), bt = kernels::permute(b, {1, 0});
     for (int flags = 0; flags < 4; ++flags) {
