@@ -222,8 +222,10 @@ void Adam<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<Tens
   const double t = static_cast<double>(this->steps_ + 1);
   const double lr = this->learning_rate_;
   AdamRun<T> run;
-  run.beta1 = static_cast<T>(options_.beta1), run.keep1 = static_cast<T>(1 - options_.beta1);
-  run.beta2 = static_cast<T>(options_.beta2), run.keep2 = static_cast<T>(1 - options_.beta2);
+  run.beta1 = static_cast<T>(options_.beta1);
+  run.keep1 = static_cast<T>(1 - options_.beta1);
+  run.beta2 = static_cast<T>(options_.beta2);
+  run.keep2 = static_cast<T>(1 - options_.beta2);
   // Bias corrections 1 − β^t, in double (Algorithm 1 of Kingma & Ba 2015).
   run.correction1 = static_cast<T>(1 - std::pow(options_.beta1, t));
   run.correction2 = static_cast<T>(1 - std::pow(options_.beta2, t));

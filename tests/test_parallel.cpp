@@ -1,5 +1,6 @@
 // Parallel kernels give bit-identical results with 1 and 2 threads (engine/parallel.h):
-// elementwise work, broadcasting, every reduction pattern, and the matrix product.
+// elementwise work, broadcasting, every reduction pattern, the matrix product and batch
+// normalisation; and the chunks over several arrays cover each element once.
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <cstring>
@@ -59,11 +60,12 @@ TEST_CASE("kernels are bit-identical with 1 and 2 threads", "[parallel]") {
   check_thread_independent("matmul", [&] { return kernels::matrix_product(a, b, false, false); });
   check_thread_independent("matmul aᵀ bᵀ",
                            [&] { return kernels::matrix_product(b, a, true, true); });
-  // Row panels of 16 rows (a result under 256 rows), and column panels (under 32 rows).
+  // Row panels of 16 rows (a result of 64 rows), and column panels (a result of 16 rows).
   const F wide = rng.uniform<float>({320, 2000}, -1, 1),
+          short_rows = rng.uniform<float>({320, 64}, -1, 1),
           narrow = rng.uniform<float>({320, 16}, -1, 1);
   check_thread_independent("matmul, short result",
-                           [&] { return kernels::matrix_product(b, wide, true, false); });
+                           [&] { return kernels::matrix_product(short_rows, wide, true, false); });
   check_thread_independent("matmul, wide result",
                            [&] { return kernels::matrix_product(narrow, wide, true, false); });
   const F gain = rng.uniform<float>({32}, 0.5, 2), offset = rng.uniform<float>({32}, -1, 1);
