@@ -265,6 +265,14 @@ const std::string& Archive::text(const std::string& name) const {
   return r.text;
 }
 
+Shape Archive::tensor_shape(const std::string& name) const {
+  const Record& r = find(name);
+  if (r.kind == RecordKind::kFloat32Tensor) return r.f32.shape();
+  if (r.kind == RecordKind::kFloat64Tensor) return r.f64.shape();
+  raise(ErrorKind::kCorruptCheckpoint,
+        source_ + ": record '" + name + "' is a " + to_string(r.kind) + ", expected a tensor");
+}
+
 std::vector<std::string> Archive::names() const {
   std::vector<std::string> out;
   out.reserve(records_.size());
@@ -431,18 +439,30 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
     who = "record '" + name + "'";
 
     Shape shape;
+    int64_t numel = 0;
     if (detail::is_tensor(kind)) {
       const uint8_t rank = in.read_le<uint8_t>("the rank of " + who);
       if (rank > kMaxRank)
         corrupt(who + " has rank " + std::to_string(rank) + " (at most " +
                 std::to_string(kMaxRank) + " allowed)");
+      int64_t extents[kMaxRank];
+      std::string listed;
       for (int axis = 0; axis < rank; ++axis) {
         const uint64_t extent = in.read_le<uint64_t>("the extents of " + who);
-        if (extent > static_cast<uint64_t>(std::numeric_limits<int64_t>::max()))
+        listed += (axis ? ", " : "") + std::to_string(extent);
+        if (extent > static_cast<uint64_t>(kMaxElements))
           corrupt(who + " has extent " + std::to_string(extent) + " on axis " +
-                  std::to_string(axis));
-        shape.push_back(static_cast<int64_t>(extent));
+                  std::to_string(axis) + " of its shape (at most " + std::to_string(kMaxElements) +
+                  ")");
+        extents[axis] = static_cast<int64_t>(extent);
       }
+      // Counted with overflow checks before anything is built (a zero extent does not excuse
+      // absurd others: [2^62, 2, 0] is refused).
+      numel = checked_element_count(extents, rank);
+      if (numel < 0)
+        corrupt(who + " has shape [" + listed + "], more than " + std::to_string(kMaxElements) +
+                " elements");
+      shape = Shape(extents, extents + rank);
     }
     const uint64_t payload_bytes = in.read_le<uint64_t>("the payload length of " + who);
     in.need(payload_bytes, "the payload of " + who);
@@ -462,13 +482,9 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
       case RecordKind::kFloat64Tensor: {
         const uint64_t element =
             kind == RecordKind::kFloat32Tensor ? sizeof(float) : sizeof(double);
-        // The element count, refusing overflow (a zero extent makes the count 0 whatever follows).
-        uint64_t numel = 1, expected = 0;
-        bool overflow = false;
-        for (int64_t extent : shape)
-          overflow |= __builtin_mul_overflow(numel, static_cast<uint64_t>(extent), &numel);
-        overflow |= __builtin_mul_overflow(numel, element, &expected);
-        if (overflow || expected != payload_bytes)
+        // numel is at most kMaxElements, so this cannot overflow.
+        const uint64_t expected = static_cast<uint64_t>(numel) * element;
+        if (expected != payload_bytes)
           corrupt(who + " has shape " + shape.str() + " but a payload of " +
                   std::to_string(payload_bytes) + " bytes");
         if (kind == RecordKind::kFloat32Tensor) {

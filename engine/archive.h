@@ -58,6 +58,8 @@ class Archive {
   Tensor<T> tensor(const std::string& name) const;
   int64_t integer(const std::string& name) const;
   const std::string& text(const std::string& name) const;
+  // The shape of a tensor record (either element type), without copying its data.
+  Shape tensor_shape(const std::string& name) const;
 
   bool contains(const std::string& name) const { return index_.count(name) != 0; }
   RecordKind kind(const std::string& name) const;  // raises as the readers do when missing

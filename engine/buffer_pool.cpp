@@ -1,13 +1,19 @@
 #include "engine/buffer_pool.h"
 
+#include <cassert>
 #include <mutex>
 #include <new>
 #include <vector>
 
+#include "engine/error.h"
+
 namespace spar {
 namespace {
 
-constexpr int kClasses = 4 * 48;  // four classes per power of two up to 2^48 bytes
+// Four classes per power of two, up to 2^56 bytes: past every tensor Shape allows
+// (kMaxElements · 8 bytes = 2^51). A larger request is refused before class_of is asked.
+constexpr int kClasses = 4 * 51;
+constexpr size_t kMaxBlockBytes = size_t{1} << 56;
 
 // Size class index for `bytes` (>= 1) and the capacity of that class.
 int class_of(size_t bytes) {
@@ -29,6 +35,11 @@ struct Pool {
   std::mutex mutex;
   std::vector<detail::BlockHeader*> free[kClasses];
   PoolStats stats;
+  // The active PoolLimit, if any: bytes in use may not pass limit_in_use.
+  bool limited = false;
+  int64_t limit_in_use = 0;
+  ErrorKind limit_kind = ErrorKind::kBadArgument;
+  std::string limit_message;
 };
 
 Pool& pool() {
@@ -56,15 +67,37 @@ void pool_release_cached() {
   }
 }
 
+PoolLimit::PoolLimit(int64_t bytes, ErrorKind kind, std::string message) {
+  Pool& p = pool();
+  std::lock_guard<std::mutex> lock(p.mutex);
+  assert(!p.limited && "one PoolLimit at a time");
+  p.limited = true;
+  p.limit_in_use = p.stats.bytes_in_use + bytes;
+  p.limit_kind = kind;
+  p.limit_message = std::move(message);
+}
+
+PoolLimit::~PoolLimit() {
+  std::lock_guard<std::mutex> lock(pool().mutex);
+  pool().limited = false;
+}
+
 namespace detail {
 
 BlockHeader* acquire_block(size_t bytes) {
-  int cls = class_of(bytes == 0 ? 1 : bytes);
+  if (bytes > kMaxBlockBytes) throw std::bad_alloc();
+  const int cls = class_of(bytes == 0 ? 1 : bytes);
   size_t cap = capacity_of(cls);
   Pool& p = pool();
   BlockHeader* b = nullptr;
   {
     std::lock_guard<std::mutex> lock(p.mutex);
+    if (p.limited && p.stats.bytes_in_use + static_cast<int64_t>(cap) > p.limit_in_use) {
+      const ErrorKind kind = p.limit_kind;
+      const std::string message = p.limit_message;
+      p.limited = false;  // raised once; the owner's scope ends while the error unwinds
+      raise(kind, message);
+    }
     p.stats.bytes_in_use += static_cast<int64_t>(cap);
     if (!p.free[cls].empty()) {
       b = p.free[cls].back();

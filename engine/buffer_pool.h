@@ -12,6 +12,9 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <string>
+
+#include "engine/error.h"
 
 namespace spar {
 
@@ -25,6 +28,19 @@ PoolStats pool_stats();
 
 // Returns every cached block to the system. Live tensors are unaffected.
 void pool_release_cached();
+
+// While a PoolLimit lives, an allocation that would take the bytes in use more than `bytes`
+// above what they were when it was made raises Error{kind, message}. For building things
+// whose size comes from outside (a saved generator's recipe): a hostile size fails at the
+// first block past the limit, not after gigabytes and seconds. One at a time per process
+// (it counts every thread's allocations); not for use inside kernels.
+class PoolLimit {
+ public:
+  PoolLimit(int64_t bytes, ErrorKind kind, std::string message);
+  ~PoolLimit();
+  PoolLimit(const PoolLimit&) = delete;
+  PoolLimit& operator=(const PoolLimit&) = delete;
+};
 
 namespace detail {
 

@@ -6,6 +6,22 @@
 
 namespace spar {
 
+int64_t checked_element_count(const int64_t* extents, size_t count) {
+  int64_t product = 1;  // of the non-zero extents
+  bool empty = false;
+  for (size_t i = 0; i < count; ++i) {
+    const int64_t e = extents[i];
+    if (e < 0) return -1;
+    if (e == 0) {
+      empty = true;
+      continue;
+    }
+    if (product > kMaxElements / e) return -1;
+    product *= e;
+  }
+  return empty ? 0 : product;
+}
+
 Shape::Shape(std::initializer_list<int64_t> dims) {
   for (int64_t d : dims) push_back(d);
 }
@@ -14,11 +30,16 @@ void Shape::push_back(int64_t extent) {
   if (rank_ == kMaxRank)
     raise(ErrorKind::kBadShape, "shape: rank above the maximum of " + std::to_string(kMaxRank));
   if (extent < 0) raise(ErrorKind::kBadShape, "shape: negative extent " + std::to_string(extent));
-  dims_[rank_++] = extent;
+  dims_[rank_] = extent;
+  if (checked_element_count(dims_.data(), static_cast<size_t>(rank_ + 1)) < 0)
+    raise(ErrorKind::kBadShape, "shape: " + Shape(dims_.begin(), dims_.begin() + rank_).str() +
+                                    " extended by " + std::to_string(extent) + " has more than " +
+                                    std::to_string(kMaxElements) + " elements");
+  ++rank_;
 }
 
 int64_t Shape::numel() const {
-  int64_t n = 1;
+  int64_t n = 1;  // cannot overflow: push_back keeps the count within kMaxElements
   for (int i = 0; i < rank_; ++i) n *= dims_[i];
   return n;
 }
@@ -31,8 +52,8 @@ Shape Shape::without(int axis) const {
 }
 
 Shape Shape::with(int axis, int64_t extent) const {
-  Shape s = *this;
-  s.dims_[axis] = extent;
+  Shape s;
+  for (int i = 0; i < rank_; ++i) s.push_back(i == axis ? extent : dims_[i]);
   return s;
 }
 

@@ -1,5 +1,10 @@
 // Shape: the extents of a tensor, rank 0 (a scalar) to kMaxRank, row-major.
 //
+// Invariant: every extent is >= 0 and the product of the non-zero extents is at most
+// kMaxElements, so numel() and numel() * sizeof(double) never overflow an int64. push_back()
+// and with() enforce it; every reader of outside bytes counts elements with
+// checked_element_count() before it builds a Shape or allocates.
+//
 // A small value type: copying is cheap and it never allocates.
 // Thread safety: a value type; concurrent reads are safe.
 #pragma once
@@ -12,6 +17,15 @@
 namespace spar {
 
 constexpr int kMaxRank = 6;
+// The most elements a tensor may have: 2^48 (a petabyte of float32). Anything larger is a
+// corrupt or hostile size; products up to it times 8 bytes stay far inside an int64.
+constexpr int64_t kMaxElements = int64_t{1} << 48;
+
+// The number of elements of a tensor with these `count` extents, or -1 when an extent is
+// negative or the product of the non-zero extents exceeds kMaxElements. A zero extent makes
+// the count 0 (but the other extents must still be in range). The one overflow-checked
+// element count: Shape, the archive reader, the IDX reader and the generator loader use it.
+int64_t checked_element_count(const int64_t* extents, size_t count);
 
 class Shape {
  public:
@@ -24,14 +38,16 @@ class Shape {
 
   int rank() const { return rank_; }
   int64_t operator[](int axis) const { return dims_[axis]; }
-  int64_t& operator[](int axis) { return dims_[axis]; }
   int64_t numel() const;
   const int64_t* begin() const { return dims_.data(); }
   const int64_t* end() const { return dims_.data() + rank_; }
 
-  void push_back(int64_t extent);  // raises kBadShape past kMaxRank or for extent < 0
+  // Raises kBadShape past kMaxRank, for extent < 0, or when the element count would exceed
+  // kMaxElements.
+  void push_back(int64_t extent);
 
-  // The same shape with `axis` removed, or with its extent set to `extent`.
+  // The same shape with `axis` removed, or with its extent set to `extent` (checked as
+  // push_back checks).
   Shape without(int axis) const;
   Shape with(int axis, int64_t extent) const;
 

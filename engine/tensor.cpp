@@ -128,7 +128,7 @@ Tensor<T> Tensor<T>::leading_slice(int64_t begin, int64_t end) const {
   Tensor t = *this;
   int64_t row = shape_[0] == 0 ? 0 : numel() / shape_[0];
   t.data_ = data_ + begin * row;
-  t.shape_[0] = end - begin;
+  t.shape_ = shape_.with(0, end - begin);
   return t;
 }
 

@@ -17,6 +17,7 @@
 #include "engine/archive.h"
 #include "engine/random.h"
 #include "engine/tensor.h"
+#include "recipes/image_files.h"
 
 namespace spar {
 
@@ -92,6 +93,9 @@ struct ImageFolderOptions {
   // 3: RGB, grayscale images repeated into all three channels. Alpha is dropped (colour
   // values are kept as stored, not composited onto a background). Default 3.
   int64_t channels = 3;
+  // Images with more pixels than this are refused from their header, before they are
+  // decoded (a few bytes can claim 20,000 × 20,000 pixels). Default 40 million.
+  int64_t pixel_limit = kDefaultPixelLimit;
 };
 // Reads every PNG, JPEG or BMP file (by extension .png, .jpg, .jpeg, .bmp in any letter
 // case; other files are ignored, as are entries whose name starts with '.'). Either the
@@ -103,8 +107,9 @@ struct ImageFolderOptions {
 // v / 127.5 − 1. Samples are [N, channels, size, size].
 // Raises kBadArgument for a size or channel count out of range, and kBadInputFile naming
 // the path for: a missing folder or one that is not a folder; no images; loose images beside
-// class folders; a class folder without images; a file that does not decode (with stb's
-// reason) or that has a zero width or height.
+// class folders; a class folder without images; a file that is not PNG, JPEG or BMP by its
+// first bytes, has more pixels than the limit, or does not decode (decode_image_file in
+// recipes/image_files.h).
 Dataset load_image_folder(const std::string& folder, const ImageFolderOptions& options);
 
 // An IDX file of unsigned bytes [N, H, W] (read_idx, plain or gzipped) as samples

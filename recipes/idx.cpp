@@ -182,28 +182,18 @@ Header read_header(ByteSource& in, const std::string& path) {
                    " dimensions but ends after " + std::to_string(got_extents / 4));
   h.header_bytes = 4 + 4 * rank;
 
-  // The product, with overflow checked against what an int64 byte count can hold; an extent
-  // of zero makes the product zero whatever the others are.
-  const int64_t element = idx_element_bytes(h.type);
-  const int64_t limit = std::numeric_limits<int64_t>::max() / element;
-  bool overflow = false, empty = false;
-  int64_t count = 1;
   for (int i = 0; i < rank; ++i) {
     const unsigned char* b = &raw[static_cast<size_t>(4 * i)];
-    const int64_t extent =
-        (int64_t{b[0]} << 24) | (int64_t{b[1]} << 16) | (int64_t{b[2]} << 8) | int64_t{b[3]};
-    h.extents.push_back(extent);
-    if (extent == 0) empty = true;
-    if (!overflow && !empty) {
-      if (count > limit / extent)
-        overflow = true;
-      else
-        count *= extent;
-    }
+    h.extents.push_back((int64_t{b[0]} << 24) | (int64_t{b[1]} << 16) | (int64_t{b[2]} << 8) |
+                        int64_t{b[3]});
   }
-  if (empty) count = 0;
-  if (overflow && !empty)
-    fail(path, "the product of the extents " + extents_text(h.extents) + " overflows");
+  // Counted with the engine's overflow-checked count (a zero extent does not excuse absurd
+  // others).
+  const int64_t element = idx_element_bytes(h.type);
+  const int64_t count = checked_element_count(h.extents.data(), h.extents.size());
+  if (count < 0)
+    fail(path, "the extents " + extents_text(h.extents) + " hold more than " +
+                   std::to_string(kMaxElements) + " elements");
   h.count = count;
   h.data_bytes = count * element;
 

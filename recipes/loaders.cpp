@@ -1,6 +1,5 @@
 // The loaders declared in datasets.h: image folders (decoded and resampled by stb), IDX files
 // (through idx.h) and numeric CSV tables (plain or gzipped, through zlib).
-#include <stb/stb_image.h>
 #include <stb/stb_image_resize.h>
 #include <zlib.h>
 
@@ -20,6 +19,7 @@
 #include "engine/error.h"
 #include "recipes/datasets.h"
 #include "recipes/idx.h"
+#include "recipes/image_files.h"
 
 namespace spar {
 namespace {
@@ -97,18 +97,10 @@ std::vector<fs::path> images_beneath(const fs::path& folder) {
 
 // Decodes `path` and writes its [channels, size, size] sample, values in [−1, 1], to `out`
 // (see ImageFolderOptions for the geometry and the conversions).
-void load_image(const std::string& path, int channels, int size, float* out) {
-  int w = 0, h = 0, n = 0;
-  std::unique_ptr<unsigned char, void (*)(void*)> pixels(stbi_load(path.c_str(), &w, &h, &n, 0),
-                                                         stbi_image_free);
-  if (!pixels) {
-    const char* reason = stbi_failure_reason();
-    fail(path, std::string("cannot decode as PNG, JPEG or BMP: ") +
-                   (reason ? reason : "no reason given"));
-  }
-  if (w <= 0 || h <= 0)
-    fail(path, "the image is " + std::to_string(w) + "x" + std::to_string(h) + " pixels");
-  if (n < 1 || n > 4) fail(path, "the decoder returned " + std::to_string(n) + " channels");
+void load_image(const std::string& path, int channels, int size, int64_t pixel_limit, float* out) {
+  const DecodedImage image = decode_image_file(path, pixel_limit, "data.pixel_limit");
+  const int w = image.width, h = image.height, n = image.channels;
+  const unsigned char* pixels = image.pixels.get();
 
   // The centre square, converted to `channels` interleaved float values in 0..255.
   const int side = std::min(w, h);
@@ -117,7 +109,7 @@ void load_image(const std::string& path, int channels, int size, float* out) {
   for (int y = 0; y < side; ++y) {
     for (int x = 0; x < side; ++x) {
       const unsigned char* p =
-          pixels.get() + (static_cast<size_t>(y0 + y) * w + static_cast<size_t>(x0 + x)) * n;
+          pixels + (static_cast<size_t>(y0 + y) * w + static_cast<size_t>(x0 + x)) * n;
       float* q = &square[(static_cast<size_t>(y) * side + x) * channels];
       if (n <= 2) {  // gray, gray + alpha
         for (int c = 0; c < channels; ++c) q[c] = p[0];
@@ -130,7 +122,6 @@ void load_image(const std::string& path, int channels, int size, float* out) {
       }
     }
   }
-  pixels.reset();
 
   std::vector<float> resized;
   const std::vector<float>* result = &square;
@@ -247,7 +238,7 @@ Dataset load_image_folder(const std::string& folder, const ImageFolderOptions& o
   float* out = data.samples.mutable_data();
   for (int64_t i = 0; i < n; ++i)
     load_image(images[static_cast<size_t>(i)].string(), static_cast<int>(c), static_cast<int>(s),
-               out + i * c * s * s);
+               options.pixel_limit, out + i * c * s * s);
   data.origin = "folder " + folder;
   return data;
 }

@@ -90,7 +90,7 @@ Var<T> gradient_penalty(const Critic<T>& critic, const Tensor<T>& real, const Te
     raise(ErrorKind::kBadShape, "gradient penalty: real " + real.shape().str() + " and fake " +
                                     fake.shape().str() + " batches differ");
   Shape per_sample = real.shape();
-  for (int i = 1; i < per_sample.rank(); ++i) per_sample[i] = 1;
+  for (int i = 1; i < per_sample.rank(); ++i) per_sample = per_sample.with(i, 1);
   Tensor<T> mixed_value;
   {
     NoRecordScope constant;  // x̂ is an input of the critic, not a function of anything trained

@@ -88,6 +88,10 @@ const std::vector<Key>& keys() {
                  "dcgan model)",
                  nullptr, 8, 256),
         SPAR_KEY("data.channels", channels, "images: 1 (grayscale) or 3 (RGB)", nullptr, 1, 3),
+        SPAR_KEY("data.pixel_limit", pixel_limit,
+                 "images: an image with more pixels is refused from its header, before it is "
+                 "decoded",
+                 nullptr, 1, 1e10),
         SPAR_KEY("data.swatch_count", swatch_count, "swatches: how many to make", nullptr, 2, 1e7),
         SPAR_KEY("data.labelled", table_labelled, "table: one column holds the class label"),
         SPAR_KEY("data.label_column", label_column,

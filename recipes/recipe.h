@@ -15,22 +15,25 @@
 #include <string>
 #include <vector>
 
+#include "recipes/image_files.h"
+
 namespace spar {
 
 struct Recipe {
   // [data]
-  std::string data_source = "swatches";  // ring8, grid25, swatches, images, idx, table
-  std::string data_path;                 // images: folder; idx: image file; table: CSV file
-  std::string data_labels;               // idx: label file ("" for none)
-  std::vector<std::string> class_names;  // idx, table: names for classes 0, 1, ...
-  int64_t image_size = 32;               // images, swatches: side in pixels
-  int64_t channels = 3;                  // images: 1 (grayscale) or 3 (RGB)
-  int64_t swatch_count = 8192;           // swatches: how many to make
-  bool table_labelled = false;           // table: one column holds the class
-  int64_t label_column = -1;             // table: that column (0-based, negative from the end)
-  bool table_header = false;             // table: skip the first line
-  double table_low = 0, table_high = 0;  // table: value range mapped to [−1, 1]; equal: own
-  int64_t picture_width = 0;             // table: draw samples as pictures this wide; 0 none
+  std::string data_source = "swatches";      // ring8, grid25, swatches, images, idx, table
+  std::string data_path;                     // images: folder; idx: image file; table: CSV file
+  std::string data_labels;                   // idx: label file ("" for none)
+  std::vector<std::string> class_names;      // idx, table: names for classes 0, 1, ...
+  int64_t image_size = 32;                   // images, swatches: side in pixels
+  int64_t channels = 3;                      // images: 1 (grayscale) or 3 (RGB)
+  int64_t swatch_count = 8192;               // swatches: how many to make
+  bool table_labelled = false;               // table: one column holds the class
+  int64_t label_column = -1;                 // table: that column (0-based, negative from the end)
+  bool table_header = false;                 // table: skip the first line
+  double table_low = 0, table_high = 0;      // table: value range mapped to [−1, 1]; equal: own
+  int64_t picture_width = 0;                 // table: draw samples as pictures this wide; 0 none
+  int64_t pixel_limit = kDefaultPixelLimit;  // images: refuse larger images before decoding
 
   // [model]
   std::string model = "dcgan";  // mlp or dcgan

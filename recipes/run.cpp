@@ -7,6 +7,7 @@
 #include <fstream>
 #include <sstream>
 
+#include "engine/buffer_pool.h"
 #include "engine/error.h"
 #include "recipes/mixtures.h"
 #include "recipes/pictures.h"
@@ -43,13 +44,37 @@ void put_shape_and_classes(Archive& a, const Shape& shape, const std::vector<std
   a.put_text("classes", joined);
 }
 
+// The recorded shape of one sample, checked before anything is built from it: rank 1 (points,
+// table rows) or 3 (images), every extent at least 1, and the count within the engine's limit.
 Shape shape_from(const Archive& a) {
   const int64_t rank = a.integer("sample.rank");
-  if (rank < 1 || rank > kMaxRank)
-    raise(ErrorKind::kCorruptCheckpoint, a.source() + ": sample rank " + std::to_string(rank));
+  if (rank != 1 && rank != 3)
+    raise(ErrorKind::kCorruptCheckpoint,
+          a.source() + ": record 'sample.rank' is " + std::to_string(rank) + " (1 or 3 expected)");
   std::vector<int64_t> dims;
-  for (int64_t i = 0; i < rank; ++i) dims.push_back(a.integer("sample.dim" + std::to_string(i)));
+  for (int64_t i = 0; i < rank; ++i) {
+    const std::string name = "sample.dim" + std::to_string(i);
+    dims.push_back(a.integer(name));
+    if (dims.back() < 1)
+      raise(ErrorKind::kCorruptCheckpoint,
+            a.source() + ": record '" + name + "' is " + std::to_string(dims.back()));
+  }
+  if (checked_element_count(dims.data(), dims.size()) < 0)
+    raise(ErrorKind::kCorruptCheckpoint, a.source() +
+                                             ": records 'sample.dim*' describe more than " +
+                                             std::to_string(kMaxElements) + " values per sample");
   return Shape(dims.begin(), dims.end());
+}
+
+// The bytes of float tensors a file holds: what a network built from its recipe may take,
+// with room for the initial weights drawn before the records replace them and for a critic
+// of about the generator's size (built with it, never saved in generator.spar).
+int64_t network_budget(const Archive& a) {
+  int64_t bytes = 0;
+  for (const std::string& name : a.names())
+    if (a.kind(name) == RecordKind::kFloat32Tensor)
+      bytes += a.tensor_shape(name).numel() * static_cast<int64_t>(sizeof(float));
+  return 4 * bytes + (int64_t{64} << 20);
 }
 
 std::vector<std::string> classes_from(const Archive& a) {
@@ -151,6 +176,7 @@ Dataset load_dataset(const Recipe& r) {
     ImageFolderOptions o;
     o.size = r.image_size;
     o.channels = r.channels;
+    o.pixel_limit = r.pixel_limit;
     if (o.channels == 2) bad_recipe("data.channels", "must be 1 or 3, not 2");
     data = load_image_folder(r.data_path, o);
   } else if (r.data_source == "idx") {
@@ -434,7 +460,23 @@ SavedGenerator load_generator(const std::string& folder_or_file) {
   g.step = a.integer("step");
   g.sample_shape = shape_from(a);
   g.class_names = classes_from(a);
-  g.pair = make_gan_pair(g.recipe, g.sample_shape, static_cast<int64_t>(g.class_names.size()));
+  if (static_cast<int64_t>(g.class_names.size()) > kMaxClasses)
+    raise(ErrorKind::kCorruptCheckpoint,
+          path + ": record 'classes' names " + std::to_string(g.class_names.size()) +
+              " classes (at most " + std::to_string(kMaxClasses) + ")");
+  {
+    // A crafted recipe (model.width 4096, model.depth 32) must not build gigabytes of network
+    // before its first tensor is found not to fit: the networks may take only what the file's
+    // tensors could fill.
+    PoolLimit limit(network_budget(a), ErrorKind::kCorruptCheckpoint,
+                    path +
+                        ": its recipe describes networks far larger than the tensors it holds "
+                        "(model.width " +
+                        std::to_string(g.recipe.width) + ", model.depth " +
+                        std::to_string(g.recipe.depth) + ", model.latent " +
+                        std::to_string(g.recipe.latent) + ")");
+    g.pair = make_gan_pair(g.recipe, g.sample_shape, static_cast<int64_t>(g.class_names.size()));
+  }
   g.pair.generator->load(a, "generator");
   return g;
 }

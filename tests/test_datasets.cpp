@@ -464,6 +464,86 @@ TEST_CASE("image folder errors name the folder or file at fault", "[datasets]") 
   CHECK(error_kind_of([&] { load_image_folder(fine, {0, 3}); }) == ErrorKind::kBadArgument);
 }
 
+// Little-endian bytes of v, n of them (BMP headers).
+std::string le_bytes(uint64_t v, int n) {
+  std::string s;
+  for (int i = 0; i < n; ++i) s.push_back(static_cast<char>((v >> (8 * i)) & 0xFF));
+  return s;
+}
+
+// A 54-byte BMP header (BITMAPINFOHEADER, 24 bits per pixel, no pixel data) claiming w × h.
+std::string bmp_header(uint32_t w, uint32_t h) {
+  return "BM" + le_bytes(54, 4) + le_bytes(0, 4) + le_bytes(54, 4) + le_bytes(40, 4) +
+         le_bytes(w, 4) + le_bytes(h, 4) + le_bytes(1, 2) + le_bytes(24, 2) + le_bytes(0, 4) +
+         le_bytes(0, 4) + le_bytes(2835, 4) + le_bytes(2835, 4) + le_bytes(0, 4) + le_bytes(0, 4);
+}
+
+TEST_CASE("hostile image files are refused from their first bytes, before decoding", "[datasets]") {
+  ScratchDir dir;
+  auto alone = [&](const std::string& name, const std::string& bytes) {
+    const std::string folder = dir.folder("alone-" + name);
+    return write_bytes(folder + "/" + name, bytes);
+  };
+  auto folder_of = [](const std::string& file) { return file.substr(0, file.rfind('/')); };
+
+  // Regression: a Radiance HDR file named .png made the decoder loop forever. Files are
+  // identified by their magic bytes (PNG 89 50 4e 47 0d 0a 1a 0a, JPEG ff d8 ff, BMP "BM").
+  const std::string hdr = alone(
+      "sky.png", "#?RADIANCE\nFORMAT=32-bit_rle_rgbe\n\n-Y 2 +X 2\n" + std::string(16, '\x02'));
+  std::string message;
+  CHECK(error_kind_of([&] { load_image_folder(folder_of(hdr), {}); }, &message) ==
+        ErrorKind::kBadInputFile);
+  CHECK(message == hdr + ": not a PNG, JPEG or BMP image (it starts with 23 3f 52 41 44 49 41 4e)");
+
+  // Regression: a 54-byte BMP header claiming 16384 × 16384 took 3.9 GB; a PNG claiming
+  // 20000 × 20000 (only its IHDR chunk, PNG specification §11.2.2) took 5.1 GB.
+  const std::string bmp = alone("big.bmp", bmp_header(16384, 16384));
+  require_bad_input(
+      [&] { load_image_folder(folder_of(bmp), {}); },
+      bmp + ": 16384x16384 pixels, more than the limit of 40000000 (data.pixel_limit)");
+  std::string ihdr = "IHDR";
+  for (uint32_t v : {20000u, 20000u})
+    for (int b = 3; b >= 0; --b) ihdr.push_back(static_cast<char>((v >> (8 * b)) & 0xFF));
+  ihdr += std::string("\x08\x00\x00\x00\x00", 5);  // 8-bit gray, deflate, no interlace
+  const uint32_t crc = static_cast<uint32_t>(
+      ::crc32(0, reinterpret_cast<const Bytef*>(ihdr.data()), static_cast<uInt>(ihdr.size())));
+  std::string png = "\x89PNG\r\n\x1a\n" + std::string("\0\0\0\x0d", 4) + ihdr;
+  for (int b = 3; b >= 0; --b) png.push_back(static_cast<char>((crc >> (8 * b)) & 0xFF));
+  const std::string big_png = alone("big.png", png);
+  require_bad_input([&] { load_image_folder(folder_of(big_png), {}); },
+                    big_png + ": 20000x20000 pixels, more than the limit");
+
+  // The limit is adjustable: an 8 × 8 image passes a limit of 64 pixels, not one of 63.
+  const std::string small = alone("small.png", "");
+  write_png(small, 8, 8, {50});
+  ImageFolderOptions tight;
+  tight.size = 8;
+  tight.pixel_limit = 64;
+  CHECK(load_image_folder(folder_of(small), tight).samples.shape() == Shape{1, 3, 8, 8});
+  tight.pixel_limit = 63;
+  require_bad_input([&] { load_image_folder(folder_of(small), tight); },
+                    small + ": 8x8 pixels, more than the limit of 63");
+
+  // Regression: a DHT segment whose 16 code counts add up to more than 256 made the JPEG
+  // decoder's table builder write past its arrays (ITU-T T.81 B.2.4.2: at most 256 codes).
+  const std::string good_jpeg = alone("good.jpg", "");
+  const std::vector<unsigned char> grey(16 * 16 * 3, 128);
+  REQUIRE(stbi_write_jpg(good_jpeg.c_str(), 16, 16, 3, grey.data(), 90));
+  std::ifstream in(good_jpeg, std::ios::binary);
+  const std::string jpeg((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  const auto* jp = reinterpret_cast<const unsigned char*>(jpeg.data());
+  CHECK(image_format_of(jp, jpeg.size()) == "JPEG");
+  CHECK(check_jpeg_huffman_tables(jp, jpeg.size()).empty());  // a real encoder's tables pass
+  std::string dht = "\xff\xc4" + std::string("\x00\x13", 2) + std::string(1, '\0') +
+                    std::string(16, '\xff');  // 16 × 255 = 4,080 codes
+  const std::string hostile = jpeg.substr(0, 2) + dht + jpeg.substr(2);
+  const std::string bad_jpeg = alone("tables.jpg", hostile);
+  require_bad_input([&] { load_image_folder(folder_of(bad_jpeg), {}); },
+                    bad_jpeg +
+                        ": damaged JPEG: a Huffman table (DHT segment at byte 2) declares "
+                        "4080 codes, more than the 256 a table can hold");
+}
+
 // ---- IDX ----------------------------------------------------------------------------------
 
 // Xiao et al. 2017 (REFERENCES.md): the test split is 10,000 28×28 grayscale images, ten classes

@@ -292,27 +292,30 @@ TEST_CASE("idx: trailing bytes after the data, plain and gzipped") {
   require_bad_idx(write_gzip(dir.file("long.gz"), longer), "trailing bytes");
 }
 
-TEST_CASE("idx: an extents product that overflows") {
+TEST_CASE("idx: an extents product past the engine's element limit") {
   ScratchDir dir;
   // (2^32−1)^4 is far past 2^63.
   require_bad_idx(
       write_plain(dir.file("huge"),
                   idx_file(0x08, {0xffffffffu, 0xffffffffu, 0xffffffffu, 0xffffffffu}, {})),
-      "overflows");
+      "more than 281474976710656 elements");
   // 2^31 · 2^31 · 2 = 2^63 one-byte elements: one past the largest int64.
   require_bad_idx(write_plain(dir.file("edge"), idx_file(0x08, {1u << 31, 1u << 31, 2}, {})),
-                  "overflows");
-  // 2^30 · 2^30 = 2^60 elements fit an int64, but not as 8-byte float64 data (2^63 bytes)...
-  require_bad_idx(write_gzip(dir.file("edge.gz"), idx_file(0x0E, {1u << 30, 1u << 30}, {})),
-                  "overflows");
-  // ...while one element fewer per row fits, and is then too long for the file.
-  require_bad_idx(write_gzip(dir.file("fits.gz"), idx_file(0x0E, {1u << 30, (1u << 30) - 1}, {})),
+                  "more than");
+  // 2^24 · 2^24 + a row = just past kMaxElements (2^48)...
+  require_bad_idx(write_gzip(dir.file("edge.gz"), idx_file(0x0E, {(1u << 24) + 1, 1u << 24}, {})),
+                  "more than");
+  // ...while 2^48 float64 elements (2^51 bytes) are counted, and are then too long for the file.
+  require_bad_idx(write_gzip(dir.file("fits.gz"), idx_file(0x0E, {1u << 24, 1u << 24}, {})),
                   "truncated");
-  // An extent of zero makes the product zero whatever the others are.
-  CHECK(
-      read_idx_integers(write_plain(dir.file("zero"),
-                                    idx_file(0x08, {0xffffffffu, 0xffffffffu, 0xffffffffu, 0}, {})))
-          .values.empty());
+  // A zero extent does not excuse absurd others: the 16-byte file [2^32−1, 2^32−1, 0] once
+  // overflowed the element count while building its empty tensor (regression).
+  require_bad_idx(
+      write_plain(dir.file("zero-absurd"), idx_file(0x08, {0xffffffffu, 0xffffffffu, 0}, {})),
+      "more than");
+  // An honest empty file: a zero extent makes the count zero.
+  CHECK(read_idx_integers(write_plain(dir.file("zero"), idx_file(0x08, {60000, 28, 0}, {})))
+            .values.empty());
 }
 
 TEST_CASE("idx: a header claiming more than the file holds fails before allocating") {

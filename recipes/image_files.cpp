@@ -1,0 +1,176 @@
+#include "recipes/image_files.h"
+
+#include <algorithm>
+#include <cerrno>
+#include <cstdio>
+#include <cstring>
+#include <limits>
+#include <memory>
+#include <new>
+#include <vector>
+
+#include "engine/error.h"
+
+// stb_image, compiled here with only the readers spar accepts. STB_IMAGE_STATIC keeps every
+// function of this copy private to this file, apart from the libstb the rest of spar links.
+#define STB_IMAGE_STATIC
+#define STB_IMAGE_IMPLEMENTATION
+#define STBI_ONLY_PNG
+#define STBI_ONLY_JPEG
+#define STBI_ONLY_BMP
+#define STBI_NO_STDIO
+#define STBI_NO_LINEAR
+#define STBI_NO_HDR
+#define STBI_FAILURE_USERMSG
+#if defined(__GNUC__)
+#pragma GCC diagnostic push
+#pragma GCC diagnostic ignored "-Wall"
+#pragma GCC diagnostic ignored "-Wextra"
+#pragma GCC diagnostic ignored "-Wpedantic"
+#pragma GCC diagnostic ignored "-Wshadow"
+#pragma GCC diagnostic ignored "-Wunused-function"
+#pragma GCC diagnostic ignored "-Wsign-compare"
+#pragma GCC diagnostic ignored "-Wimplicit-fallthrough"
+#pragma GCC diagnostic ignored "-Wmissing-field-initializers"
+#pragma GCC diagnostic ignored "-Wunused-but-set-variable"
+#pragma GCC diagnostic ignored "-Wdouble-promotion"
+#endif
+#include <stb/stb_image.h>
+#if defined(__GNUC__)
+#pragma GCC diagnostic pop
+#endif
+
+namespace spar {
+namespace {
+
+[[noreturn]] void fail(const std::string& path, const std::string& why) {
+  raise(ErrorKind::kBadInputFile, path + ": " + why);
+}
+
+std::string hex_bytes(const unsigned char* p, size_t n) {
+  std::string s;
+  char b[4];
+  for (size_t i = 0; i < n; ++i) {
+    std::snprintf(b, sizeof b, "%02x", p[i]);
+    s += (i ? " " : "") + std::string(b);
+  }
+  return s;
+}
+
+std::vector<unsigned char> read_file(const std::string& path) {
+  std::unique_ptr<std::FILE, int (*)(std::FILE*)> f(std::fopen(path.c_str(), "rb"), std::fclose);
+  if (!f) fail(path, std::string("cannot open: ") + std::strerror(errno));
+  if (std::fseek(f.get(), 0, SEEK_END) != 0)
+    fail(path, "cannot seek: " + std::string(std::strerror(errno)));
+  const long size = std::ftell(f.get());
+  if (size < 0) fail(path, std::string("cannot tell its size: ") + std::strerror(errno));
+  if (size > kMaxImageFileBytes)
+    fail(path, std::to_string(size) + " bytes; image files larger than " +
+                   std::to_string(kMaxImageFileBytes >> 20) + " MiB are refused");
+  std::rewind(f.get());
+  std::vector<unsigned char> bytes(static_cast<size_t>(size));
+  if (size > 0 && std::fread(bytes.data(), 1, bytes.size(), f.get()) != bytes.size())
+    fail(path, std::string("cannot read: ") + std::strerror(errno));
+  return bytes;
+}
+
+}  // namespace
+
+std::string image_format_of(const unsigned char* p, size_t n) {
+  static const unsigned char kPng[8] = {0x89, 'P', 'N', 'G', 0x0D, 0x0A, 0x1A, 0x0A};
+  if (n >= 8 && std::memcmp(p, kPng, 8) == 0) return "PNG";
+  if (n >= 3 && p[0] == 0xFF && p[1] == 0xD8 && p[2] == 0xFF) return "JPEG";
+  if (n >= 2 && p[0] == 'B' && p[1] == 'M') return "BMP";
+  return "";
+}
+
+// Walks the JPEG markers (ITU-T T.81, annex B): every segment but SOI, EOI, RSTn and TEM
+// carries a 2-byte big-endian length that counts itself; after a start-of-scan segment,
+// entropy-coded data runs to the next marker (0xFF followed by neither 0x00, a stuffed byte,
+// nor a restart marker). A DHT segment (0xC4) holds tables of a class/id byte, 16 code counts
+// and as many symbols as the counts add up to, at most 256 (T.81 B.2.4.2).
+std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
+  if (image_format_of(p, n) != "JPEG") return "";
+  size_t i = 2;
+  while (i < n) {
+    if (p[i] != 0xFF) return "";        // not a marker where one belongs: the decoder refuses it
+    while (i < n && p[i] == 0xFF) ++i;  // fill bytes
+    if (i >= n) return "";
+    const unsigned marker = p[i++];
+    if (marker == 0xD9) return "";  // end of image
+    if (marker == 0xD8 || marker == 0x01 || marker == 0x00 || (marker >= 0xD0 && marker <= 0xD7))
+      continue;
+    if (n - i < 2) return "";
+    const size_t length = (size_t{p[i]} << 8) | p[i + 1];
+    if (length < 2) return "";
+    const size_t end = n - i < length ? n : i + length;
+    if (marker == 0xC4) {
+      for (size_t q = i + 2; q < end;) {
+        if (end - q < 17)
+          return "a Huffman table (DHT segment at byte " + std::to_string(i - 2) + ") is cut short";
+        size_t codes = 0;
+        for (size_t k = 1; k <= 16; ++k) codes += p[q + k];
+        if (codes > 256)
+          return "a Huffman table (DHT segment at byte " + std::to_string(i - 2) + ") declares " +
+                 std::to_string(codes) + " codes, more than the 256 a table can hold";
+        q += 17 + codes;
+        if (q > end)
+          return "a Huffman table (DHT segment at byte " + std::to_string(i - 2) +
+                 ") runs past its segment";
+      }
+    }
+    i = end;
+    if (marker == 0xDA)  // entropy-coded data up to the next real marker
+      while (i + 1 < n &&
+             !(p[i] == 0xFF && p[i + 1] != 0x00 && !(p[i + 1] >= 0xD0 && p[i + 1] <= 0xD7)))
+        ++i;
+  }
+  return "";
+}
+
+DecodedImage decode_image_file(const std::string& path, int64_t pixel_limit,
+                               const std::string& limit_key) {
+  try {
+    const std::vector<unsigned char> bytes = read_file(path);
+    const std::string format = image_format_of(bytes.data(), bytes.size());
+    if (format.empty())
+      fail(path, bytes.empty()
+                     ? "empty file, not a PNG, JPEG or BMP image"
+                     : "not a PNG, JPEG or BMP image (it starts with " +
+                           hex_bytes(bytes.data(), std::min<size_t>(bytes.size(), 8)) + ")");
+    if (bytes.size() > static_cast<size_t>(std::numeric_limits<int>::max()))
+      fail(path, "too large for the decoder");
+    const int size = static_cast<int>(bytes.size());
+    // Before the decoder reads the header: reading it builds the Huffman tables too.
+    if (format == "JPEG") {
+      const std::string bad = check_jpeg_huffman_tables(bytes.data(), bytes.size());
+      if (!bad.empty()) fail(path, "damaged JPEG: " + bad);
+    }
+    int w = 0, h = 0, n = 0;
+    if (!stbi_info_from_memory(bytes.data(), size, &w, &h, &n)) {
+      const char* reason = stbi_failure_reason();
+      fail(path, "cannot read its " + format + " header: " + (reason ? reason : "no reason given"));
+    }
+    const int64_t pixels = static_cast<int64_t>(w) * h;
+    if (w <= 0 || h <= 0)
+      fail(path, "the image is " + std::to_string(w) + "x" + std::to_string(h) + " pixels");
+    if (pixels > pixel_limit)
+      fail(path, std::to_string(w) + "x" + std::to_string(h) + " pixels, more than the limit of " +
+                     std::to_string(pixel_limit) + " (" + limit_key + ")");
+    DecodedImage image;
+    image.pixels.reset(
+        stbi_load_from_memory(bytes.data(), size, &image.width, &image.height, &image.channels, 0),
+        stbi_image_free);
+    if (!image.pixels) {
+      const char* reason = stbi_failure_reason();
+      fail(path, "cannot decode as " + format + ": " + (reason ? reason : "no reason given"));
+    }
+    if (image.width != w || image.height != h || image.channels < 1 || image.channels > 4)
+      fail(path, "the decoder returned an image other than its header announced");
+    return image;
+  } catch (const std::bad_alloc&) {
+    fail(path, "out of memory while decoding");
+  }
+}
+
+}  // namespace spar
