@@ -51,7 +51,6 @@ bool known_kind(uint8_t k) {
   return k >= 1 && k <= 4;
 }
 
-// True when `s` is well-formed UTF-8 (no overlong forms, surrogates or values past U+10FFFF).
 bool valid_utf8(const std::string& s) {
   const auto* p = reinterpret_cast<const unsigned char*>(s.data());
   size_t n = s.size(), i = 0;
@@ -146,6 +145,10 @@ class Reader {
 
 }  // namespace
 }  // namespace detail
+
+bool is_valid_utf8(const std::string& s) {
+  return detail::valid_utf8(s);
+}
 
 uint32_t crc32(const void* data, size_t size, uint32_t crc) {
   const auto* p = static_cast<const unsigned char*>(data);

@@ -117,6 +117,10 @@ using ByteSink = std::function<void(const void*, size_t)>;
 void write_file_atomically(const std::string& path,
                            const std::function<void(const ByteSink&)>& produce);
 
+// True when `s` is well-formed UTF-8 (RFC 3629: no overlong forms, surrogates or values past
+// U+10FFFF), the rule for an archive's names and texts.
+bool is_valid_utf8(const std::string& s);
+
 // CRC-32 as in IEEE 802.3 (reflected polynomial 0xEDB88320, initial value and final xor
 // 0xFFFFFFFF). Pass the previous result as `crc` to continue over more bytes:
 // crc32(b, nb, crc32(a, na)) == crc32 of a followed by b. crc32("123456789") == 0xCBF43926.

@@ -69,6 +69,13 @@ double sum_run(const T* __restrict x, int64_t n) {
   return detail::lane_sum(n, [x](int64_t i) { return static_cast<double>(x[i]); });
 }
 
+// Σ 0·x: 0 (of either sign) when every element is finite, NaN otherwise (0·±∞ and 0·NaN
+// are NaN, and NaN survives every sum).
+template <class T>
+double zero_sum_run(const T* __restrict x, int64_t n) {
+  return detail::lane_sum(n, [x](int64_t i) { return static_cast<double>(x[i]) * 0.0; });
+}
+
 template <class T>
 T softplus(T x) {
   return std::max(x, T(0)) + std::log1p(std::exp(-std::abs(x)));
@@ -596,6 +603,24 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
   return out;
 }
 
+template <class T>
+int64_t first_non_finite(const Tensor<T>& x) {
+  const int64_t n = x.numel();
+  const int64_t chunks = std::max<int64_t>(1, (n + kParallelGrain - 1) / kParallelGrain);
+  std::vector<double> partial(static_cast<size_t>(chunks), 0.0);
+  const T* p = x.data();
+  parallel_for(chunks, true, [&](int64_t c) {
+    const int64_t b = c * kParallelGrain, e = std::min(n, b + kParallelGrain);
+    partial[c] = zero_sum_run(p + b, e - b);
+  });
+  bool finite = true;
+  for (double v : partial) finite &= v == 0;
+  if (finite) return -1;
+  for (int64_t i = 0; i < n; ++i)
+    if (!std::isfinite(p[i])) return i;
+  return -1;
+}
+
 #define SPAR_INSTANTIATE(T)                                                           \
   template Tensor<T> unary(Unary, const Tensor<T>&);                                  \
   template Tensor<T> power(const Tensor<T>&, double);                                 \
@@ -609,6 +634,7 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
   template Tensor<T> broadcast_to(const Tensor<T>&, const Shape&);                    \
   template Tensor<T> sum_into_shape(const Tensor<T>&, const Shape&);                  \
   template double sum_all(const Tensor<T>&);                                          \
+  template int64_t first_non_finite(const Tensor<T>&);                                \
   template Tensor<T> max_along(const Tensor<T>&, int, Tensor<T>*);                    \
   template Tensor<T> log_sum_exp_along(const Tensor<T>&, int);                        \
   template Tensor<T> matrix_product(const Tensor<T>&, const Tensor<T>&, bool, bool);  \

@@ -146,5 +146,11 @@ NormaliseGradients<T> normalise_channels_adjoint(const Tensor<T>& g, const Tenso
 template <class T>
 double sum_all(const Tensor<T>& x);
 
+// The index of the first NaN or ±∞ in x, or −1 when every element is finite. One vectorised
+// pass (Σ 0·x is NaN exactly when some element is not finite); the scan for the index runs
+// only when one is found. Cheap enough to run on every parameter and gradient each step.
+template <class T>
+int64_t first_non_finite(const Tensor<T>& x);
+
 }  // namespace kernels
 }  // namespace spar

@@ -386,6 +386,10 @@ Dataset load_table(const std::string& path, const TableOptions& options) {
       fail(path, "every feature cell holds " + number_text(from) +
                      ", so the table has no range to scale; give low and high");
   }
+  // to − from can overflow to infinity for finite ends (−1e308 and 1e308); halving both ends
+  // first keeps every intermediate finite and changes the result only for subnormal values.
+  const double half = std::isfinite(to - from) ? 1.0 : 0.5;
+  const double base = from * half, span = to * half - from * half;
   data.samples = Tensor<float>::uninitialised(Shape{n, features});
   float* out = data.samples.mutable_data();
   for (int64_t i = 0; i < n; ++i)
@@ -396,7 +400,7 @@ Dataset load_table(const std::string& path, const TableOptions& options) {
         fail(path + ":" + std::to_string(line_of_row[static_cast<size_t>(i)]),
              "cell " + std::to_string(k + 1) + " holds " + number_text(v) + ", outside [" +
                  number_text(from) + ", " + number_text(to) + "]");
-      *out++ = static_cast<float>(2.0 * ((v - from) / (to - from)) - 1.0);
+      *out++ = static_cast<float>(2.0 * ((v * half - base) / span) - 1.0);
     }
   return data;
 }

@@ -11,6 +11,7 @@
 #include <sstream>
 #include <type_traits>
 
+#include "engine/archive.h"
 #include "engine/error.h"
 
 namespace spar {
@@ -209,15 +210,36 @@ std::string float_text(double v) {
   return s;
 }
 
+// A TOML basic string (TOML 1.0, "Basic strings"): quotes, backslashes and every control
+// character escaped, so any UTF-8 text reads back as itself.
 std::string toml_string(const std::string& s) {
   std::string out = "\"";
-  for (char c : s) {
-    if (c == '"' || c == '\\') out += '\\';
-    if (c == '\n') {
-      out += "\\n";
-      continue;
+  for (unsigned char c : s) {
+    switch (c) {
+      case '"':
+        out += "\\\"";
+        break;
+      case '\\':
+        out += "\\\\";
+        break;
+      case '\n':
+        out += "\\n";
+        break;
+      case '\t':
+        out += "\\t";
+        break;
+      case '\r':
+        out += "\\r";
+        break;
+      default:
+        if (c < 0x20 || c == 0x7F) {
+          char code[8];
+          std::snprintf(code, sizeof code, "\\u%04X", c);
+          out += code;
+        } else {
+          out += static_cast<char>(c);
+        }
     }
-    out += c;
   }
   return out + "\"";
 }
@@ -321,6 +343,9 @@ void assign(const Key& key, const toml::node& node, Recipe& recipe, const std::s
     case Type::kString: {
       if (!node.is_string()) wrong_type();
       const std::string v = *node.value<std::string>();
+      if (!is_valid_utf8(v))
+        bad_key(origin, &node, key.name,
+                "is not valid UTF-8 text (a file name in another encoding?)");
       if (key.choices) {
         const std::string choices = key.choices;
         bool found = false;
@@ -372,6 +397,8 @@ void assign(const Key& key, const toml::node& node, Recipe& recipe, const std::s
           bad_key(origin, &item, key.name,
                   "every item must be a string, not " + describe_node(item));
         v.push_back(*item.value<std::string>());
+        if (!is_valid_utf8(v.back()))
+          bad_key(origin, &item, key.name, "an item is not valid UTF-8 text");
       }
       *static_cast<std::vector<std::string>*>(p) = v;
       return;
@@ -431,15 +458,17 @@ Recipe load_recipe(const std::string& name_or_path) {
   std::stringstream text;
   text << in.rdbuf();
   Recipe recipe = parse_recipe(text.str(), name_or_path);
-  // Data paths in a file are relative to the file's folder, so recipes travel with their data.
+  // Data paths in a file are relative to the file's folder, so recipes travel with their data;
+  // they are stored absolute, so a run can be resumed or judged from any directory.
   const std::filesystem::path folder = std::filesystem::path(name_or_path).parent_path();
   for (std::string* p : {&recipe.data_path, &recipe.data_labels})
-    if (!p->empty() && std::filesystem::path(*p).is_relative() && !folder.empty())
-      *p = (folder / *p).lexically_normal().string();
+    if (!p->empty() && std::filesystem::path(*p).is_relative())
+      *p = std::filesystem::absolute(folder / *p).lexically_normal().string();
   return recipe;
 }
 
-void apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin) {
+std::string apply_setting(Recipe& recipe, const std::string& assignment,
+                          const std::string& origin) {
   const size_t eq = assignment.find('=');
   if (eq == std::string::npos || eq == 0)
     raise(ErrorKind::kBadRecipe, origin + ": " + toml_string(assignment) + " is not key=value");
@@ -456,6 +485,17 @@ void apply_setting(Recipe& recipe, const std::string& assignment, const std::str
     parsed = toml::table{{"v", value}};
   }
   assign(*key, *parsed.get("v"), recipe, origin);
+  return key->name;
+}
+
+std::vector<std::string> differing_keys(const Recipe& a, const Recipe& b) {
+  Recipe x = a, y = b;
+  std::vector<std::string> out;
+  for (const Key& k : keys()) {
+    const std::string va = value_text(k, x), vb = value_text(k, y);
+    if (va != vb) out.push_back(std::string(k.name) + " (" + va + " → " + vb + ")");
+  }
+  return out;
 }
 
 std::string to_toml(const Recipe& recipe) {

@@ -85,10 +85,14 @@ Recipe parse_recipe(const std::string& text, const std::string& origin);
 Recipe load_recipe(const std::string& name_or_path);
 // Applies "key=value" with value in TOML syntax; a bare word is taken as a string, so
 // `--set objective.name=hinge` works unquoted. Raises kBadRecipe naming `origin` and the key.
-void apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin);
+// Returns the key's name.
+std::string apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin);
 // Every key with its value, by section, with each key's meaning as a comment; parse_recipe
 // of the result gives `recipe` back.
 std::string to_toml(const Recipe& recipe);
+// The keys whose values differ between two recipes, in key-list order, each as
+// "key (A → B)" with the values as TOML text.
+std::vector<std::string> differing_keys(const Recipe& a, const Recipe& b);
 // docs/recipe-keys.md, generated from recipe_keys().
 std::string recipe_keys_markdown();
 

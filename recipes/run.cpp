@@ -1,10 +1,18 @@
 #include "recipes/run.h"
 
+#include <fcntl.h>
+#include <sys/file.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
 #include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <cstring>
 #include <filesystem>
 #include <fstream>
+#include <set>
 #include <sstream>
 
 #include "engine/buffer_pool.h"
@@ -20,7 +28,172 @@ namespace {
 
 const char* const kStateFile = "state.spar";
 const char* const kGeneratorFile = "generator.spar";
+const char* const kRecipeFile = "recipe.toml";
+const char* const kLogFile = "log.csv";
+const char* const kCurvesFile = "curves.svg";
+const char* const kHistoryFile = "history.txt";
+const char* const kLockFile = "run.lock";
+// Every file a run writes in its folder, besides samples/step-*.{png,csv} and run.lock.
+const char* const kRunFiles[] = {kRecipeFile, kLogFile,       kCurvesFile,
+                                 kStateFile,  kGeneratorFile, kHistoryFile};
 const char* const kLogHeader = "step,seconds,critic_loss,generator_loss,real_score,fake_score";
+// recipe.toml's first line names the run: "# spar run <id>: ...".
+const std::string kRecipeHeader = "# spar run ";
+
+std::string path_in(const std::string& folder, const std::string& name) {
+  return (fs::path(folder) / name).string();
+}
+
+bool all_digits(const std::string& s) {
+  return !s.empty() && std::all_of(s.begin(), s.end(), [](char c) { return c >= '0' && c <= '9'; });
+}
+
+// samples/step-NNNNNN.png or .csv
+bool is_sample_file(const std::string& name) {
+  if (name.size() < 9 || name.rfind("step-", 0) != 0) return false;
+  const std::string tail = name.substr(name.size() - 4);
+  return (tail == ".png" || tail == ".csv") && all_digits(name.substr(5, name.size() - 9));
+}
+bool is_run_file(const std::string& name) {
+  return std::find_if(std::begin(kRunFiles), std::end(kRunFiles),
+                      [&](const char* f) { return name == f; }) != std::end(kRunFiles);
+}
+// "<file a run writes>.tmp-<pid>": what write_file_atomically leaves when it is killed.
+bool is_stale_temporary(const std::string& name, bool in_samples) {
+  const size_t at = name.rfind(".tmp-");
+  if (at == std::string::npos || !all_digits(name.substr(at + 5))) return false;
+  const std::string base = name.substr(0, at);
+  return in_samples ? is_sample_file(base) : is_run_file(base);
+}
+
+// Removes what a run wrote in `folder` (with its stale temporaries when `everything`, or only
+// those), and nothing else; samples/ goes only when nothing else is left in it.
+void remove_run_files(const std::string& folder, bool everything) {
+  std::error_code ignored;
+  for (const bool in_samples : {false, true}) {
+    const fs::path where = in_samples ? fs::path(folder) / "samples" : fs::path(folder);
+    std::vector<fs::path> doomed;
+    for (fs::directory_iterator it(where, ignored), end; !ignored && it != end;
+         it.increment(ignored)) {
+      const std::string name = it->path().filename().string();
+      if (is_stale_temporary(name, in_samples) ||
+          (everything && (in_samples ? is_sample_file(name) : is_run_file(name))))
+        doomed.push_back(it->path());
+    }
+    ignored.clear();
+    for (const fs::path& p : doomed) fs::remove(p, ignored);
+  }
+  if (everything && fs::is_empty(fs::path(folder) / "samples", ignored))
+    fs::remove(fs::path(folder) / "samples", ignored);
+}
+
+// Whether `folder` holds anything but a lock file.
+bool occupied(const std::string& folder) {
+  std::error_code ignored;
+  for (fs::directory_iterator it(folder, ignored), end; !ignored && it != end;
+       it.increment(ignored))
+    if (it->path().filename() != kLockFile) return true;
+  return false;
+}
+
+// Takes the folder's writer lock (flock on run.lock, which then holds our process id), or
+// raises kBadArgument naming the process that holds it.
+std::shared_ptr<void> lock_folder(const std::string& folder) {
+  const std::string path = path_in(folder, kLockFile);
+  const int fd = ::open(path.c_str(), O_RDWR | O_CREAT | O_CLOEXEC, 0644);
+  if (fd < 0) raise(ErrorKind::kIo, path + ": cannot open the run's lock: " + std::strerror(errno));
+  if (::flock(fd, LOCK_EX | LOCK_NB) != 0) {
+    const int err = errno;
+    char holder[32] = {0};
+    const ssize_t got = ::pread(fd, holder, sizeof holder - 1, 0);
+    ::close(fd);
+    std::string pid = got > 0 ? std::string(holder, static_cast<size_t>(got)) : "";
+    pid.erase(std::remove(pid.begin(), pid.end(), '\n'), pid.end());
+    if (err != EWOULDBLOCK) raise(ErrorKind::kIo, path + ": cannot lock: " + std::strerror(err));
+    raise(ErrorKind::kBadArgument,
+          folder + ": another spar" + (all_digits(pid) ? " (process " + pid + ")" : "") +
+              " is writing this run; wait for it to finish or stop it first");
+  }
+  const std::string me = std::to_string(static_cast<long>(::getpid())) + "\n";
+  if (::ftruncate(fd, 0) != 0 || ::pwrite(fd, me.data(), me.size(), 0) < 0) {
+    // The lock holds without the note; a refused writer then names no process.
+  }
+  return std::shared_ptr<void>(new int(fd), [](void* p) {
+    ::close(*static_cast<int*>(p));
+    delete static_cast<int*>(p);
+  });
+}
+
+// A random id for a new run (16 hex digits); it labels files and never reaches the numbers.
+std::string new_run_id() {
+  uint64_t bits = 0;
+  std::FILE* f = std::fopen("/dev/urandom", "rb");
+  if (!f || std::fread(&bits, sizeof bits, 1, f) != 1)
+    bits = static_cast<uint64_t>(std::chrono::steady_clock::now().time_since_epoch().count()) ^
+           (static_cast<uint64_t>(::getpid()) << 32);
+  if (f) std::fclose(f);
+  char text[24];
+  std::snprintf(text, sizeof text, "%016llx", static_cast<unsigned long long>(bits));
+  return text;
+}
+
+// FNV-1a, 64 bits, in hex: a short name for a text (the resolved recipe's).
+std::string text_hash(const std::string& text) {
+  uint64_t h = 0xcbf29ce484222325ull;
+  for (unsigned char c : text) h = (h ^ c) * 0x100000001b3ull;
+  char out[24];
+  std::snprintf(out, sizeof out, "%016llx", static_cast<unsigned long long>(h));
+  return out;
+}
+std::string recipe_hash(const Recipe& r) {
+  return text_hash(to_toml(r));
+}
+
+// recipe.toml as spar writes it: two comment lines, the first "# spar run <id>, recipe
+// <hash>: ...", then to_toml of the recipe, whose text_hash is <hash>. So a file spar wrote
+// and nobody edited is told from an edited one: its body still has the hash its header says.
+std::string recipe_file_text(const std::string& id, const Recipe& r) {
+  const std::string body = to_toml(r);
+  return kRecipeHeader + id + ", recipe " + text_hash(body) +
+         ": the resolved recipe, every key with its value.\n"
+         "# To change a key of this run on purpose: spar resume FOLDER --set key=value.\n" +
+         body;
+}
+struct RecipeFile {
+  std::string id;      // "" when the header is missing (an older run, or removed)
+  bool edited = true;  // false when the body is exactly what spar wrote
+};
+RecipeFile read_recipe_header(const std::string& text) {
+  RecipeFile f;
+  if (text.rfind(kRecipeHeader, 0) != 0) return f;
+  const size_t comma = text.find(", recipe ", kRecipeHeader.size());
+  const size_t line_end = text.find('\n');
+  if (comma == std::string::npos || comma > line_end) return f;
+  f.id = text.substr(kRecipeHeader.size(), comma - kRecipeHeader.size());
+  const std::string hash = text.substr(comma + 9, 16);
+  const size_t second_end = text.find('\n', line_end + 1);
+  if (second_end != std::string::npos) f.edited = text_hash(text.substr(second_end + 1)) != hash;
+  return f;
+}
+
+std::string read_whole(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  std::stringstream text;
+  text << in.rdbuf();
+  return text.str();
+}
+
+// Keys that describe what a run trained on: a resume cannot change them.
+bool describes_the_training(const std::string& key) {
+  return key.rfind("data.", 0) == 0 || key.rfind("model.", 0) == 0 || key == "training.seed";
+}
+
+// Relative data paths, taken from the current directory, made absolute.
+void make_data_paths_absolute(Recipe& r) {
+  for (std::string* p : {&r.data_path, &r.data_labels})
+    if (!p->empty() && fs::path(*p).is_relative())
+      *p = fs::absolute(*p).lexically_normal().string();
+}
 
 bool is_mixture(const Recipe& r) {
   return r.data_source == "ring8" || r.data_source == "grid25";
@@ -33,6 +206,9 @@ bool is_mixture(const Recipe& r) {
 void require_path(const Recipe& r) {
   if (r.data_path.empty())
     bad_recipe("data.path", "required when data.source is \"" + r.data_source + "\"");
+  std::error_code ignored;
+  if (!fs::exists(r.data_path, ignored))
+    bad_recipe("data.path", "\"" + r.data_path + "\" does not exist (moved or removed?)");
 }
 
 // Records describing what the networks are for: sample shape, classes and their names.
@@ -139,6 +315,25 @@ std::string log_line(const LogRow& r) {
 
 void write_text_atomically(const std::string& path, const std::string& text) {
   write_file_atomically(path, text.data(), text.size());
+}
+
+// The recipe's networks for a file's sample shape, built under a budget of the file's own
+// tensors: a crafted recipe (model.width 4096, model.depth 32) must not build gigabytes of
+// network before its first tensor is found not to fit. Anything that does not fit is
+// kCorruptCheckpoint naming the file.
+GanPair build_for_file(const Archive& a, const Recipe& r, const Shape& shape, int64_t classes) {
+  const std::string what = a.source() + ": its recipe (model.kind " + r.model + ", model.width " +
+                           std::to_string(r.width) + ", model.depth " + std::to_string(r.depth) +
+                           ", model.latent " + std::to_string(r.latent) + ") and sample shape " +
+                           shape.str() + " (records 'sample.rank', 'sample.dim0', ...)";
+  try {
+    PoolLimit limit(network_budget(a), ErrorKind::kCorruptCheckpoint,
+                    what + " describe networks far larger than the tensors it holds");
+    return make_gan_pair(r, shape, classes);
+  } catch (const Error& e) {
+    if (e.kind() == ErrorKind::kCorruptCheckpoint) throw;
+    raise(ErrorKind::kCorruptCheckpoint, what + " do not fit: " + e.what());
+  }
 }
 
 }  // namespace
@@ -274,53 +469,109 @@ TrainingOptions training_options(const Recipe& r) {
 
 // ---- A run in its folder ----
 
-Run::Run(std::string folder, Recipe recipe)
+Run::Run(std::string folder, Recipe recipe, const Archive* state)
     : folder_(std::move(folder)), recipe_(std::move(recipe)) {
   std::unique_ptr<DataSource> data = make_data_source(recipe_);
   sample_shape_ = data->sample_shape();
   if (auto* set = dynamic_cast<DatasetSource*>(data.get()))
     class_names_ = set->dataset().class_names;
-  trainer_ = std::make_unique<TrainingRun>(make_gan_pair(recipe_, sample_shape_, data->classes()),
-                                           std::move(data), training_options(recipe_));
+  GanPair pair = state ? build_for_file(*state, recipe_, sample_shape_, data->classes())
+                       : make_gan_pair(recipe_, sample_shape_, data->classes());
+  trainer_ =
+      std::make_unique<TrainingRun>(std::move(pair), std::move(data), training_options(recipe_));
 }
 
-Run Run::start(const std::string& folder, const Recipe& recipe, bool force) {
+Run Run::start(const std::string& folder, const Recipe& given, bool force) {
   std::error_code error;
   if (fs::exists(folder) && !fs::is_directory(folder))
     raise(ErrorKind::kBadArgument, folder + ": exists and is not a folder");
-  const bool occupied = fs::exists(folder) && !fs::is_empty(folder);
-  if (occupied && !force)
-    raise(
-        ErrorKind::kBadArgument,
-        folder + ": is not empty; choose another folder, or pass --force to replace the run in it");
+  const auto refuse_occupied = [&] {
+    raise(ErrorKind::kBadArgument,
+          folder +
+              ": is not empty; choose another folder, or pass --force to replace the run in "
+              "it (--force removes only the files a run writes)");
+  };
+  if (fs::exists(folder) && occupied(folder) && !force) refuse_occupied();
+  Recipe recipe = given;
+  make_data_paths_absolute(recipe);
   // Load the data and build the networks before touching the disk, so a recipe or data error
   // leaves an earlier run in the folder as it was.
   Run run(folder, recipe);
-  if (occupied) {
-    for (const char* name : {"recipe.toml", "log.csv", "curves.svg", kStateFile, kGeneratorFile})
-      fs::remove(fs::path(folder) / name, error);
-    fs::remove_all(fs::path(folder) / "samples", error);
-  }
-  fs::create_directories(fs::path(folder) / "samples", error);
+  fs::create_directories(folder, error);
   if (error) raise(ErrorKind::kIo, folder + ": cannot be created: " + error.message());
-  write_text_atomically((fs::path(folder) / "recipe.toml").string(), to_toml(recipe));
-  write_text_atomically((fs::path(folder) / "log.csv").string(), std::string(kLogHeader) + "\n");
+  run.lock_ = lock_folder(folder);
+  if (!force && occupied(folder)) refuse_occupied();  // another spar got here first
+  remove_run_files(folder, force);
+  fs::create_directories(fs::path(folder) / "samples", error);
+  if (error) raise(ErrorKind::kIo, folder + "/samples: cannot be created: " + error.message());
+  run.run_id_ = new_run_id();
+  run.write_recipe_file();
+  write_text_atomically(path_in(folder, kLogFile), std::string(kLogHeader) + "\n");
   run.save_checkpoints();
   run.write_samples();
   return run;
 }
 
-Run Run::reopen(const std::string& folder) {
-  const std::string state_path = (fs::path(folder) / kStateFile).string();
+Run Run::reopen(const std::string& folder, const std::vector<std::string>& settings) {
+  const std::string state_path = path_in(folder, kStateFile);
   if (!fs::exists(state_path))
     raise(ErrorKind::kBadArgument, folder + ": holds no " + kStateFile + " (not a run folder?)");
+  std::shared_ptr<void> lock = lock_folder(folder);
+  remove_run_files(folder, false);  // stale temporaries of an interrupted write
   const Archive state = Archive::read_file(state_path);
-  Run run(folder, parse_recipe(state.text("recipe"), state_path + " (its recipe)"));
+  const Recipe saved = parse_recipe(state.text("recipe"), state_path + " (its recipe)");
+  const std::string id = state.contains("run.id") ? state.text("run.id") : "";
+
+  // recipe.toml as the folder has it: the same run, and unedited unless asked for.
+  const std::string recipe_path = path_in(folder, kRecipeFile);
+  Recipe on_disk = saved;
+  if (fs::exists(recipe_path)) {
+    const std::string text = read_whole(recipe_path);
+    const RecipeFile file = read_recipe_header(text);
+    const std::string& file_id = file.id;
+    if (!id.empty() && file_id != id)
+      raise(ErrorKind::kBadArgument,
+            state_path + ": belongs to run " + id + ", but " + folder + " holds run " +
+                (file_id.empty() ? "(unnamed)" : file_id) +
+                " (recipe.toml); a state.spar continues only the run that wrote it");
+    // A file as spar wrote it may lag the state by a step's change (a kill between the two
+    // writes): the state holds. Only an edit by hand must be asked for.
+    if (file.edited) on_disk = parse_recipe(text, recipe_path);
+  }
+  Recipe wanted = saved;
+  std::set<std::string> asked;
+  for (const std::string& setting : settings) {
+    const std::string key = apply_setting(wanted, setting, "--set " + setting);
+    if (describes_the_training(key))
+      raise(ErrorKind::kBadArgument, "--set " + key +
+                                         ": describes what the run trained on and cannot "
+                                         "change on resume; start a new run for that");
+    asked.insert(key);
+  }
+  std::string unasked;
+  for (const std::string& change : differing_keys(saved, on_disk))
+    if (!asked.count(change.substr(0, change.find(' '))))
+      unasked += (unasked.empty() ? "" : ", ") + change;
+  if (!unasked.empty())
+    raise(ErrorKind::kBadArgument,
+          recipe_path + ": edited since the run wrote it: " + unasked +
+              "; to change a key on purpose, resume with --set key=value; otherwise undo the "
+              "edit");
+
+  Run run(folder, wanted, &state);
+  run.lock_ = std::move(lock);
+  run.run_id_ = id.empty() ? new_run_id() : id;  // runs from before ids get one now
   run.trainer_->load(state);
+  run.checkpoint_step_ = run.steps_done();
   run.elapsed_before_ = static_cast<double>(state.integer("elapsed_ms")) / 1000;
   run.elapsed_ = run.elapsed_before_;
+  run.history_ = fs::exists(path_in(folder, kHistoryFile))
+                     ? read_whole(path_in(folder, kHistoryFile))
+                     : std::string();
+  run.note_changes(saved, "spar resume --set");
+  run.write_recipe_file();
   // Rows logged after the checkpoint belong to steps that will be redone: drop them.
-  const std::string log_path = (fs::path(folder) / "log.csv").string();
+  const std::string log_path = path_in(folder, kLogFile);
   std::string text = std::string(kLogHeader) + "\n";
   for (const LogRow& row : read_log(log_path))
     if (row.step <= run.steps_done()) text += log_line(row) + "\n";
@@ -329,9 +580,23 @@ Run Run::reopen(const std::string& folder) {
   return run;
 }
 
+void Run::write_recipe_file() {
+  write_text_atomically(path_in(folder_, kRecipeFile), recipe_file_text(run_id_, recipe_));
+}
+
+void Run::note_changes(const Recipe& before, const std::string& how) {
+  const std::vector<std::string> changes = differing_keys(before, recipe_);
+  if (changes.empty()) return;
+  for (const std::string& c : changes)
+    history_ += "step " + std::to_string(steps_done()) + ": " + c + ", by " + how + "\n";
+  write_text_atomically(path_in(folder_, kHistoryFile), history_);
+}
+
 void Run::plan_steps(int64_t total) {
+  const Recipe before = recipe_;
   recipe_.steps = total;
-  write_text_atomically((fs::path(folder_) / "recipe.toml").string(), to_toml(recipe_));
+  write_recipe_file();
+  note_changes(before, "spar resume --steps");
 }
 
 std::string Run::samples_path(int64_t step) const {
@@ -341,14 +606,19 @@ std::string Run::samples_path(int64_t step) const {
 void Run::save_checkpoints() {
   Archive state;
   state.put_text("kind", "spar training state");
+  state.put_text("run.id", run_id_);
+  state.put_text("run.recipe_hash", recipe_hash(recipe_));
   state.put_text("recipe", to_toml(recipe_));
   put_shape_and_classes(state, sample_shape_, class_names_);
   state.put_int("elapsed_ms", static_cast<int64_t>(std::llround(elapsed_ * 1000)));
   trainer_->save(state);
-  state.write_file((fs::path(folder_) / kStateFile).string());
+  state.write_file(path_in(folder_, kStateFile));
+  checkpoint_step_ = steps_done();
 
   Archive generator;
   generator.put_text("kind", "spar generator");
+  generator.put_text("run.id", run_id_);
+  generator.put_text("run.recipe_hash", recipe_hash(recipe_));
   generator.put_text("recipe", to_toml(recipe_));
   put_shape_and_classes(generator, sample_shape_, class_names_);
   generator.put_int("step", steps_done());
@@ -357,10 +627,13 @@ void Run::save_checkpoints() {
 }
 
 void Run::write_log_row(const StepReport& s) {
-  std::ofstream out((fs::path(folder_) / "log.csv").string(), std::ios::app);
+  std::ofstream out(path_in(folder_, kLogFile), std::ios::app);
   out << log_line({s.step, elapsed_, s.critic_loss, s.generator_loss, s.real_score, s.fake_score})
       << "\n";
-  if (!out) raise(ErrorKind::kIo, folder_ + "/log.csv: cannot be appended to");
+  out.flush();
+  if (!out)
+    raise(ErrorKind::kIo,
+          path_in(folder_, kLogFile) + ": cannot be appended to: " + std::strerror(errno));
 }
 
 void Run::write_samples() {
@@ -377,7 +650,7 @@ void Run::write_samples() {
 }
 
 void Run::write_curves() {
-  const std::vector<LogRow> rows = read_log((fs::path(folder_) / "log.csv").string());
+  const std::vector<LogRow> rows = read_log(path_in(folder_, kLogFile));
   PlotSeries critic{"critic loss", {}, {}}, generator{"generator loss", {}, {}};
   PlotSeries real{"on real samples", {}, {}}, fake{"on generated samples", {}, {}};
   for (const LogRow& r : rows) {
@@ -395,7 +668,25 @@ void Run::write_curves() {
        logistic ? "probability" : "score",
        {real, fake}},
   };
-  write_svg((fs::path(folder_) / "curves.svg").string(), line_chart_svg(panels, "generator step"));
+  write_svg(path_in(folder_, kCurvesFile), line_chart_svg(panels, "generator step"));
+}
+
+std::string Run::divergence(const StepReport& r) {
+  if (warned_) return "";
+  const double size = std::max(std::abs(r.critic_loss), std::abs(r.generator_loss));
+  if (r.step <= 100) early_loss_size_ = std::max(early_loss_size_, size);
+  const bool huge = size > 1e6;
+  const bool grown =
+      r.step > 100 && early_loss_size_ > 0 && size > 1000 * std::max(1.0, early_loss_size_);
+  if (!huge && !grown) return "";
+  warned_ = true;
+  char text[200];
+  std::snprintf(text, sizeof text,
+                "step %lld: the critic loss is %.3g and the generator loss %.3g (%s); training "
+                "looks divergent: a learning rate too high?",
+                static_cast<long long>(r.step), r.critic_loss, r.generator_loss,
+                huge ? "above 1e6" : "a thousand times their size in the first 100 steps");
+  return text;
 }
 
 RunResult Run::train_until(int64_t total_steps, const std::atomic<bool>* stop,
@@ -405,39 +696,46 @@ RunResult Run::train_until(int64_t total_steps, const std::atomic<bool>* stop,
   RunProgress progress;
   progress.total_steps = total_steps;
   RunResult result;
-  while (steps_done() < total_steps) {
-    if (stop && stop->load()) {
-      result.end = RunEnd::kInterrupted;
-      break;
+  try {
+    while (steps_done() < total_steps) {
+      if (stop && stop->load()) {
+        result.end = RunEnd::kInterrupted;
+        break;
+      }
+      StepReport report;
+      try {
+        report = trainer_->step();
+      } catch (const Error& e) {
+        if (e.kind() != ErrorKind::kNumericalFailure) throw;
+        result.end = RunEnd::kNumericalFailure;
+        result.message = e.what();
+        result.step = checkpoint_step_;  // the last checkpoint is left as it was
+        return result;
+      }
+      const double seconds = std::chrono::duration<double>(Clock::now() - begin).count();
+      elapsed_ = elapsed_before_ + seconds;
+      const int64_t step = steps_done();
+      if (step % recipe_.log_every == 0 || step == total_steps) write_log_row(report);
+      if (step % recipe_.sample_every == 0 || step == total_steps) {
+        write_samples();
+        write_curves();
+      }
+      if (step % recipe_.checkpoint_every == 0) save_checkpoints();
+      progress.step = step;
+      progress.seconds = seconds;
+      progress.steps_this_call += 1;
+      progress.last = report;
+      progress.warning = divergence(report);
+      if (on_step) on_step(progress);
     }
-    StepReport report;
-    try {
-      report = trainer_->step();
-    } catch (const Error& e) {
-      if (e.kind() != ErrorKind::kNumericalFailure) throw;
-      result.end = RunEnd::kNumericalFailure;
-      result.message = e.what();
-      result.step = steps_done();  // the last checkpoint is left as it was
-      return result;
-    }
-    const double seconds = std::chrono::duration<double>(Clock::now() - begin).count();
-    elapsed_ = elapsed_before_ + seconds;
-    const int64_t step = steps_done();
-    if (step % recipe_.log_every == 0 || step == total_steps) write_log_row(report);
-    if (step % recipe_.sample_every == 0 || step == total_steps) {
-      write_samples();
-      write_curves();
-    }
-    if (step % recipe_.checkpoint_every == 0) save_checkpoints();
-    progress.step = step;
-    progress.seconds = seconds;
-    progress.steps_this_call += 1;
-    progress.last = report;
-    if (on_step) on_step(progress);
+    // At the end, and when stopped: the checkpoints hold the latest step.
+    save_checkpoints();
+    write_curves();
+  } catch (const Error& e) {
+    if (e.kind() != ErrorKind::kIo) throw;
+    raise(ErrorKind::kIo, std::string(e.what()) + "; the last complete checkpoint (step " +
+                              std::to_string(checkpoint_step_) + ") is kept in " + folder_);
   }
-  // At the end, and when stopped: the checkpoints hold the latest step.
-  save_checkpoints();
-  write_curves();
   result.step = steps_done();
   return result;
 }
@@ -464,19 +762,7 @@ SavedGenerator load_generator(const std::string& folder_or_file) {
     raise(ErrorKind::kCorruptCheckpoint,
           path + ": record 'classes' names " + std::to_string(g.class_names.size()) +
               " classes (at most " + std::to_string(kMaxClasses) + ")");
-  {
-    // A crafted recipe (model.width 4096, model.depth 32) must not build gigabytes of network
-    // before its first tensor is found not to fit: the networks may take only what the file's
-    // tensors could fill.
-    PoolLimit limit(network_budget(a), ErrorKind::kCorruptCheckpoint,
-                    path +
-                        ": its recipe describes networks far larger than the tensors it holds "
-                        "(model.width " +
-                        std::to_string(g.recipe.width) + ", model.depth " +
-                        std::to_string(g.recipe.depth) + ", model.latent " +
-                        std::to_string(g.recipe.latent) + ")");
-    g.pair = make_gan_pair(g.recipe, g.sample_shape, static_cast<int64_t>(g.class_names.size()));
-  }
+  g.pair = build_for_file(a, g.recipe, g.sample_shape, static_cast<int64_t>(g.class_names.size()));
   g.pair.generator->load(a, "generator");
   return g;
 }

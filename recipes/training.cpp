@@ -1,6 +1,7 @@
 #include "recipes/training.h"
 
 #include <cmath>
+#include <cstdio>
 
 #include "engine/error.h"
 #include "engine/kernels.h"
@@ -23,6 +24,35 @@ double mean_output(Objective objective, const Var<float>& scores) {
   for (int64_t i = 0; i < scores.numel(); ++i)
     sum += logistic ? 1 / (1 + std::exp(-static_cast<double>(v[i]))) : v[i];
   return sum / static_cast<double>(scores.numel());
+}
+
+// Numerical failure: the step, what went bad and its first bad value.
+[[noreturn]] void non_finite(int64_t step, const std::string& what, double value) {
+  char text[32];
+  std::snprintf(text, sizeof text, "%g", value);
+  raise(ErrorKind::kNumericalFailure, "step " + std::to_string(step) + ": " + what + " is " + text);
+}
+void require_finite(int64_t step, const std::string& what, double value) {
+  if (!std::isfinite(value)) non_finite(step, what, value);
+}
+// Each tensor of `tensors` (named by `names`, as "critic.down2.weight") must be finite;
+// `role` says what they are ("the gradient of", "" for the parameters themselves).
+void require_finite(int64_t step, const std::string& role,
+                    const std::vector<NamedTensor<float>>& names,
+                    const std::vector<Tensor<float>>& tensors) {
+  for (size_t i = 0; i < tensors.size(); ++i) {
+    const int64_t at = kernels::first_non_finite(tensors[i]);
+    if (at >= 0)
+      non_finite(step,
+                 role + names[i].name + " " + tensors[i].shape().str() + " at element " +
+                     std::to_string(at),
+                 tensors[i].data()[at]);
+  }
+}
+std::vector<Tensor<float>> values_of(const std::vector<NamedTensor<float>>& named) {
+  std::vector<Tensor<float>> out;
+  for (const NamedTensor<float>& n : named) out.push_back(*n.tensor);
+  return out;
 }
 
 void save_rng(Archive& archive, const std::string& name, const Rng& rng) {
@@ -92,19 +122,29 @@ double TrainingRun::critic_step() {
   Context<float> ctx(&tape_, true, &dropout_rng_);
   const Var<float> real_scores = run_critic(pair_, Var<float>(real.samples), real.labels, ctx);
   const Var<float> fake_scores = run_critic(pair_, Var<float>(fake), fake_labels, ctx);
+  const int64_t step = steps_ + 1;
   Var<float> loss =
       discriminator_loss(options_.objective, real_scores, fake_scores, options_.least_squares);
+  require_finite(step, "the critic loss", loss.item());
   // The penalties differentiate the critic with respect to its input at fixed labels; the
   // interpolates of the gradient penalty keep the real samples' labels.
   const Critic<float> on_real_labels = [&](const Var<float>& x) {
     return run_critic(pair_, x, real.labels, ctx);
   };
-  if (options_.gradient_penalty > 0)
-    loss = add(loss, gradient_penalty(on_real_labels, real.samples, fake, tape_, penalty_rng_,
-                                      options_.gradient_penalty));
-  if (options_.r1 > 0)
-    loss = add(loss, r1_penalty(on_real_labels, real.samples, tape_, options_.r1));
-  critic_adam_.step(tensors_of(critic_params_), parameter_gradients(loss, ctx, critic_params_));
+  if (options_.gradient_penalty > 0) {
+    const Var<float> penalty = gradient_penalty(on_real_labels, real.samples, fake, tape_,
+                                                penalty_rng_, options_.gradient_penalty);
+    require_finite(step, "the gradient penalty", penalty.item());
+    loss = add(loss, penalty);
+  }
+  if (options_.r1 > 0) {
+    const Var<float> penalty = r1_penalty(on_real_labels, real.samples, tape_, options_.r1);
+    require_finite(step, "the R1 penalty", penalty.item());
+    loss = add(loss, penalty);
+  }
+  const std::vector<Tensor<float>> gradients = parameter_gradients(loss, ctx, critic_params_);
+  require_finite(step, "the gradient of ", critic_params_, gradients);
+  critic_adam_.step(tensors_of(critic_params_), gradients);
   last_.real_score = mean_output(options_.objective, real_scores);
   last_.fake_score = mean_output(options_.objective, fake_scores);
   return static_cast<double>(loss.item());
@@ -123,13 +163,16 @@ StepReport TrainingRun::step() {
   Context<float> judge(nullptr, true, &dropout_rng_);
   const Var<float> loss = generator_loss(options_.objective, run_critic(pair_, fake, labels, judge),
                                          options_.least_squares);
+  const int64_t step = steps_ + 1;
   const double value = loss.item();
-  if (!std::isfinite(value))
-    raise(ErrorKind::kNumericalFailure, "step " + std::to_string(steps_ + 1) +
-                                            ": the generator loss is " + std::to_string(value));
-  generator_adam_.step(tensors_of(generator_params_),
-                       parameter_gradients(loss, ctx, generator_params_));
+  require_finite(step, "the generator loss", value);
+  const std::vector<Tensor<float>> gradients = parameter_gradients(loss, ctx, generator_params_);
+  require_finite(step, "the gradient of ", generator_params_, gradients);
+  generator_adam_.step(tensors_of(generator_params_), gradients);
   tape_.clear();
+  // Once per step, the weights themselves (an update can overflow from finite gradients).
+  require_finite(step, "", generator_params_, values_of(generator_params_));
+  require_finite(step, "", critic_params_, values_of(critic_params_));
   average_generator();
   ++steps_;
   last_.step = steps_;
@@ -211,6 +254,9 @@ void TrainingRun::load(const Archive& archive) {
     average_[i] = archive.tensor<float>("average." + generator_params_[i].name);
   generator_adam_.load(archive, "optimiser.generator");
   critic_adam_.load(archive, "optimiser.critic");
+  // The recipe's rates hold (equal to the saved ones unless a resume changed them on purpose).
+  generator_adam_.set_learning_rate(options_.generator_optimiser.learning_rate);
+  critic_adam_.set_learning_rate(options_.critic_optimiser.learning_rate);
   load_rng(archive, "stream.latent", latent_rng_);
   load_rng(archive, "stream.dropout", dropout_rng_);
   load_rng(archive, "stream.penalty", penalty_rng_);

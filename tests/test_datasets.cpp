@@ -699,6 +699,29 @@ TEST_CASE("small tables: scaling, label columns, header, blanks, CRLF, gzip", "[
   CHECK(u.classes() == 0);
 }
 
+TEST_CASE("tables at the ends of the double range scale without overflow", "[datasets]") {
+  // Regression: ±1e308 made the range 2e308 = inf and put NaN into the samples. Expected
+  // values from the formula 2 (v − low) / (high − low) − 1 worked out by hand.
+  ScratchDir dir;
+  const Dataset own = load_table(
+      write_bytes(dir.file("wide.csv"), "-1e308,0\n1e308,5e307\n-1.7976931348623157e308,1\n"),
+      TableOptions{});
+  const std::vector<float> v = own.samples.to_vector();
+  REQUIRE(v.size() == 6);
+  for (float x : v) CHECK(std::isfinite(x));
+  // The table's own range is [−DBL_MAX, 1e308]: −DBL_MAX ↦ −1, 1e308 ↦ 1.
+  CHECK(v[4] == -1.0f);
+  CHECK(v[2] == 1.0f);
+  const double low = -1.7976931348623157e308, high = 1e308;
+  CHECK(v[1] == Approx(2 * (0 / 2 - low / 2) / (high / 2 - low / 2) - 1).margin(1e-7));
+  TableOptions given;
+  given.low = -1e308;
+  given.high = 1e308;
+  const Dataset fixed =
+      load_table(write_bytes(dir.file("given.csv"), "-1e308,0,1e308,5e307\n"), given);
+  CHECK(fixed.samples.to_vector() == std::vector<float>{-1.0f, 0.0f, 1.0f, 0.5f});
+}
+
 TEST_CASE("table errors name the file and line", "[datasets]") {
   ScratchDir dir;
   TableOptions labelled;

@@ -41,6 +41,31 @@ TEST_CASE("every preset parses and survives a round trip through to_toml", "[rec
   CHECK_FALSE(load_recipe("swatches").conditional);
 }
 
+TEST_CASE("the resolved recipe is valid TOML for any UTF-8 path; other bytes are refused",
+          "[recipe]") {
+  // Regression: a path with a control character trained, but its recipe.toml did not parse
+  // again (TOML 1.0 basic strings must escape U+0000 to U+001F and U+007F).
+  Recipe r;
+  std::string odd = "fold\x01er/\x1f\x7f\ttab\rcr\nnl\"q\\b/\xc3\xa9t\xc3\xa9/\xf0\x9f\xa7\xb5";
+  for (int c = 0; c < 0x20; ++c) odd.push_back(static_cast<char>(c == 0 ? 1 : c));
+  r.data_path = odd;
+  r.class_names = {"a\x02b", "\x7f"};
+  const Recipe back = parse_recipe(to_toml(r), "round trip");
+  CHECK(back.data_path == odd);
+  CHECK(back.class_names == r.class_names);
+  // Regression: a non-UTF-8 file name given with --set was accepted and failed only at the
+  // first checkpoint, after the run folder was made.
+  Recipe s;
+  const std::string message =
+      recipe_error([&] { apply_setting(s, "data.path=/data/caf\xe9", "--set data.path=..."); });
+  CHECK(contains(message, "data.path: is not valid UTF-8"));
+  CHECK(contains(recipe_error([&] { apply_setting(s, "data.class_names=[\"\xff\"]", "--set"); }),
+                 "data.class_names"));
+  CHECK(contains(
+      recipe_error([&] { parse_recipe("[data]\nclass_names = [\"\xff\"]\n", "bad.toml"); }),
+      "bad.toml"));
+}
+
 TEST_CASE("an empty recipe holds every default", "[recipe]") {
   const Recipe r = parse_recipe("", "empty");
   CHECK(to_toml(r) == to_toml(Recipe{}));

@@ -1,4 +1,6 @@
 // Runs in their folders: files written, determinism, exact resume, stopping, saved generators.
+#include <unistd.h>
+
 #include <catch2/catch.hpp>
 #include <filesystem>
 #include <fstream>
@@ -21,6 +23,15 @@ std::string bytes_of(const std::string& path) {
   std::stringstream s;
   s << in.rdbuf();
   return s.str();
+}
+
+// An archive's bytes with the records that name the run and time it blanked, and its run id.
+std::pair<std::string, std::string> records_but_id(const std::string& path) {
+  Archive a = Archive::read_file(path);
+  const std::string id = a.text("run.id");
+  a.put_text("run.id", "");
+  if (a.contains("elapsed_ms")) a.put_int("elapsed_ms", 0);
+  return {a.to_bytes(), id};
 }
 
 // A ring8 recipe small enough for a unit test.
@@ -89,13 +100,16 @@ TEST_CASE("the same seed gives the same generator, bit for bit", "[run]") {
   const Recipe r = small_points();
   train(dir.folder("a"), r, 20);
   train(dir.folder("b"), r, 20);
-  CHECK(bytes_of(dir.folder("a") + "/generator.spar") ==
-        bytes_of(dir.folder("b") + "/generator.spar"));
+  // Every record but the run's id is the same; the ids differ (two runs, one recipe).
+  const auto a = records_but_id(dir.folder("a") + "/generator.spar");
+  const auto b = records_but_id(dir.folder("b") + "/generator.spar");
+  CHECK(a.first == b.first);
+  CHECK(a.second != b.second);
+  CHECK(a.second.size() == 16);
   Recipe other = r;
   other.seed = 2;
   train(dir.folder("c"), other, 20);
-  CHECK(bytes_of(dir.folder("a") + "/generator.spar") !=
-        bytes_of(dir.folder("c") + "/generator.spar"));
+  CHECK(records_but_id(dir.folder("c") + "/generator.spar").first != a.first);
 }
 
 TEST_CASE("stopping and resuming equals running straight through", "[run]") {
@@ -117,8 +131,10 @@ TEST_CASE("stopping and resuming equals running straight through", "[run]") {
     Run resumed = Run::reopen(dir.folder("stopped"));
     CHECK(resumed.steps_done() == half);
     CHECK(resumed.train_until(total, nullptr, nullptr).end == RunEnd::kFinished);
-    CHECK(bytes_of(dir.folder("straight") + "/generator.spar") ==
-          bytes_of(dir.folder("stopped") + "/generator.spar"));
+    CHECK(records_but_id(dir.folder("straight") + "/generator.spar").first ==
+          records_but_id(dir.folder("stopped") + "/generator.spar").first);
+    CHECK(records_but_id(dir.folder("straight") + "/state.spar").first ==
+          records_but_id(dir.folder("stopped") + "/state.spar").first);
     CHECK(bytes_of(dir.folder("straight") + "/log.csv").size() ==
           bytes_of(dir.folder("stopped") + "/log.csv").size());
   }
@@ -148,6 +164,139 @@ TEST_CASE("a saved generator samples; one from another architecture is refused",
   CHECK(error_kind_of([&] { load_generator(dir.file("other.spar")); }, &message) ==
         ErrorKind::kCorruptCheckpoint);
   CHECK(message.find("generator.") != std::string::npos);
+}
+
+// ---- What a run folder promises (docs/reliability.md) ----
+
+void write_text(const std::string& path, const std::string& text) {
+  std::ofstream out(path, std::ios::binary);
+  out << text;
+}
+
+TEST_CASE("--force removes only what a run writes; stale temporaries go too", "[run]") {
+  ScratchDir dir;
+  const Recipe r = small_points();
+  const std::string folder = dir.folder("run");
+  train(folder, r, 10);
+  write_text(folder + "/notes.txt", "mine");
+  write_text(folder + "/samples/favourite.png", "mine too");
+  write_text(folder + "/state.spar.tmp-12345", "left by a kill -9");
+  write_text(folder + "/samples/step-000010.png.tmp-99", "left by a kill -9");
+  write_text(folder + "/state.spar.tmp-old", "not ours: no process id");
+  std::string message;
+  CHECK(error_kind_of([&] { Run::start(folder, r, false); }, &message) == ErrorKind::kBadArgument);
+  CHECK(message.find("--force removes only the files a run writes") != std::string::npos);
+  Run::start(folder, r, true);
+  CHECK(bytes_of(folder + "/notes.txt") == "mine");
+  CHECK(bytes_of(folder + "/samples/favourite.png") == "mine too");
+  CHECK(fs::exists(folder + "/state.spar.tmp-old"));
+  CHECK_FALSE(fs::exists(folder + "/state.spar.tmp-12345"));
+  CHECK_FALSE(fs::exists(folder + "/samples/step-000010.png.tmp-99"));
+  CHECK_FALSE(fs::exists(folder + "/samples/step-000010.png"));  // the old run's picture
+  CHECK(fs::exists(folder + "/samples/step-000000.png"));
+}
+
+TEST_CASE("reopen removes stale temporaries and keeps the run's identity", "[run]") {
+  ScratchDir dir;
+  const std::string folder = dir.folder("run");
+  train(folder, small_points(), 10);
+  const std::string id = Archive::read_file(folder + "/state.spar").text("run.id");
+  CHECK(bytes_of(folder + "/recipe.toml").rfind("# spar run " + id + ", recipe ", 0) == 0);
+  write_text(folder + "/generator.spar.tmp-4242", "partial");
+  {
+    Run run = Run::reopen(folder);
+    CHECK(run.run_id() == id);
+    CHECK_FALSE(fs::exists(folder + "/generator.spar.tmp-4242"));
+    // A longer plan written to recipe.toml, then a kill before the next checkpoint: the file
+    // spar wrote lags nothing a user did, so the next resume is not refused.
+    run.plan_steps(16);
+  }
+  Run again = Run::reopen(folder);
+  CHECK(again.steps_done() == 10);
+}
+
+TEST_CASE("one writer per run folder", "[run]") {
+  ScratchDir dir;
+  const std::string folder = dir.folder("run");
+  Run first = Run::start(folder, small_points(), false);
+  std::string message;
+  CHECK(error_kind_of([&] { Run::start(folder, small_points(), true); }, &message) ==
+        ErrorKind::kBadArgument);
+  CHECK(message.find("(process " + std::to_string(::getpid()) + ") is writing this run") !=
+        std::string::npos);
+  CHECK(error_kind_of([&] { Run::reopen(folder); }) == ErrorKind::kBadArgument);
+  CHECK(fs::exists(folder + "/state.spar"));  // --force did not remove a held run
+}
+
+TEST_CASE("a foreign state.spar and an edited recipe.toml are refused on resume", "[run]") {
+  ScratchDir dir;
+  const std::string a = dir.folder("a"), b = dir.folder("b");
+  train(a, small_points(), 10);
+  train(b, small_points(), 10);  // the same recipe and seed: only the run ids tell them apart
+  fs::copy_file(a + "/state.spar", b + "/state.spar", fs::copy_options::overwrite_existing);
+  std::string message;
+  CHECK(error_kind_of([&] { Run::reopen(b); }, &message) == ErrorKind::kBadArgument);
+  const std::string id_a = Archive::read_file(a + "/state.spar").text("run.id");
+  const std::string id_b = Archive::read_file(b + "/generator.spar").text("run.id");
+  CHECK(message.find("belongs to run " + id_a) != std::string::npos);
+  CHECK(message.find("holds run " + id_b) != std::string::npos);
+
+  // An edit: refused naming the key and both values, unless asked for with a setting.
+  std::string toml = bytes_of(a + "/recipe.toml");
+  const std::string from = "learning_rate = 0.001", to = "learning_rate = 0.002";
+  REQUIRE(toml.find(from) != std::string::npos);
+  toml.replace(toml.find(from), from.size(), to);
+  write_text(a + "/recipe.toml", toml);
+  CHECK(error_kind_of([&] { Run::reopen(a); }, &message) == ErrorKind::kBadArgument);
+  INFO(message);
+  CHECK(message.find("edited since the run wrote it") != std::string::npos);
+  CHECK(message.find("optimiser.learning_rate (0.001 → 0.002)") != std::string::npos);
+  const std::string key =
+      message.substr(message.find("it: ") + 4, message.find(" (") - message.find("it: ") - 4);
+  Run changed = Run::reopen(a, {key + "=0.002"});
+  CHECK(bytes_of(a + "/history.txt") ==
+        "step 10: " + key + " (0.001 → 0.002), by spar resume --set\n");
+  CHECK(changed.train_until(12, nullptr, nullptr).end == RunEnd::kFinished);
+  // Keys that describe what was trained cannot change.
+  CHECK(error_kind_of([&] { Run::reopen(b, {"model.width=32"}); }, &message) ==
+        ErrorKind::kBadArgument);
+}
+
+TEST_CASE("data paths are stored absolute; a moved data file names data.path", "[run]") {
+  ScratchDir dir;
+  const std::string data = dir.folder("data"), recipes = dir.folder("recipes");
+  std::string rows;
+  for (int i = 0; i < 40; ++i) rows += std::to_string(i % 7) + "," + std::to_string(i % 5) + "\n";
+  write_text(data + "/points.csv", rows);
+  write_text(recipes + "/table.toml",
+             "[data]\nsource = \"table\"\npath = \"../data/points.csv\"\n"
+             "[model]\nkind = \"mlp\"\nwidth = 8\nlatent = 4\n[training]\nbatch = 8\n");
+  const Recipe r = load_recipe(recipes + "/table.toml");
+  CHECK(fs::path(r.data_path).is_absolute());
+  CHECK(fs::equivalent(r.data_path, data + "/points.csv"));
+  train(dir.folder("run"), r, 4);
+  fs::rename(data + "/points.csv", data + "/moved.csv");
+  std::string message;
+  CHECK(error_kind_of([&] { Run::reopen(dir.folder("run")); }, &message) == ErrorKind::kBadRecipe);
+  CHECK(message.find("data.path") != std::string::npos);
+  CHECK(message.find(r.data_path) != std::string::npos);
+}
+
+TEST_CASE("a non-finite loss stops the run naming it and the kept checkpoint's step", "[run]") {
+  // Regression: least-squares targets of 1e30 logged an infinite critic loss on every row
+  // and finished normally. ½(D(x) − 1e30)² overflows float32 (FLT_MAX ≈ 3.4e38).
+  ScratchDir dir;
+  Recipe r = small_points();
+  r.objective = "least-squares";
+  r.least_squares_real = 1e30;
+  r.checkpoint_every = 3;
+  Run run = Run::start(dir.folder("run"), r, false);
+  const RunResult result = run.train_until(20, nullptr, nullptr);
+  CHECK(result.end == RunEnd::kNumericalFailure);
+  INFO(result.message);
+  CHECK(result.message.rfind("step 1: the critic loss is inf", 0) == 0);
+  CHECK(result.step == 0);
+  CHECK(Archive::read_file(dir.folder("run") + "/state.spar").integer("step") == 0);
 }
 
 }  // namespace
