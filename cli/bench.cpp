@@ -73,8 +73,7 @@ Subcommand add_bench(CLI::App& parent) {
       "Example: spar bench --threads 2");
   app->add_flag("--json", options->json, "Print the results as JSON instead of a table");
   app->add_flag("--quick", options->bench.quick, "Small sizes and short timings (a smoke run)");
-  app->add_option("--threads", options->bench.threads, "Threads to use (default: all cores)")
-      ->check(CLI::PositiveNumber);
+  add_threads_option(*app);
   app->add_option("--only", options->only, "Run only the benchmarks whose name contains this text");
   return {app, [options] { return run(*options); }};
 }

@@ -71,6 +71,7 @@ Subcommand add_check_gradients(CLI::App& parent) {
       "Example: spar check-gradients --only matmul");
   app->add_flag("--json", options->json, "Print the results as JSON instead of a table");
   app->add_option("--only", options->only, "Run only the checks whose name contains this text");
+  add_threads_option(*app);
   return {app, [options] { return run(*options); }};
 }
 

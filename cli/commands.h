@@ -1,7 +1,9 @@
 // The subcommands of `spar`. Each add_* registers a subcommand with its options and help
 // (with an example) on the parent parser, and returns the function that runs it. A run
-// returns the exit code: 0 success, 1 the work failed, 2 bad usage or bad input; library
-// errors it does not catch are mapped to those codes by main.cpp.
+// returns the exit code: 0 success, 1 the work failed, 2 bad usage or bad input, 130/143
+// training stopped by SIGINT/SIGTERM; library errors it does not catch are mapped to those codes
+// by main.cpp. Options with numbers and --threads go through the helpers in cli/output.h, so a
+// bad value is refused in our words.
 #pragma once
 
 #include <functional>

@@ -1,13 +1,19 @@
 // spar: train small GANs on a CPU. This file only wires subcommands to their handlers and
-// maps errors to exit codes: 0 success, 1 the work failed, 2 bad usage or bad input.
-// Errors print one line on stderr: "spar: <what>: <why>".
+// maps errors to exit codes: 0 success, 1 the work failed, 2 bad usage or bad input (130 and
+// 143: training stopped by SIGINT or SIGTERM, cli/train.cpp). Errors print one line on stderr:
+// "spar: <what>: <why>"; a bad command line names the subcommand, "spar train: <what>: <why>".
+// CLI11 only parses: every message about the command line is written here or in cli/output.cpp.
+#include <unistd.h>
+
 #include <CLI/CLI.hpp>
 #include <cstdlib>
 #include <iostream>
-#include <unistd.h>
+#include <new>
 #include <vector>
 
+#include "cli/arguments.h"
 #include "cli/commands.h"
+#include "cli/output.h"
 #include "engine/error.h"
 
 namespace {
@@ -43,9 +49,10 @@ void use_short_openmp_spin(char** argv) {
 
 int main(int argc, char** argv) {
   use_short_openmp_spin(argv);
-  CLI::App app{"spar: train small generative adversarial networks on a CPU"};
+  CLI::App app{"spar: train small generative adversarial networks on a CPU", "spar"};
   app.require_subcommand(1);
   app.set_version_flag("--version", "spar 0.1.0");
+  app.option_defaults()->disable_flag_override();  // "--force=3" is refused, not read as true
   std::vector<spar::cli::Subcommand> subcommands = spar::cli::add_training_commands(app);
   for (const spar::cli::Subcommand& s : spar::cli::add_run_commands(app)) subcommands.push_back(s);
   subcommands.push_back(spar::cli::add_check_gradients(app));
@@ -53,15 +60,23 @@ int main(int argc, char** argv) {
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
-    const int code = app.exit(e);
-    return code == 0 ? 0 : 2;
+    if (e.get_exit_code() == 0) return app.exit(e);  // --help, --version
+    return spar::cli::refuse_arguments(app, spar::cli::argument_problem(app, &e, ""));
+  } catch (const spar::cli::ArgumentError& e) {
+    return spar::cli::refuse_arguments(app, spar::cli::argument_problem(app, nullptr, e.what()));
   }
+  const std::string problem = spar::cli::argument_problem(app, nullptr, "");
+  if (!problem.empty()) return spar::cli::refuse_arguments(app, problem);
   try {
     for (const spar::cli::Subcommand& s : subcommands)
       if (s.parser->parsed()) return s.run();
   } catch (const spar::Error& e) {
     std::cerr << "spar: " << e.what() << '\n';
     return exit_code_for(e.kind());
+  } catch (const std::bad_alloc&) {
+    std::cerr << "spar: out of memory (the data, the batch or the networks are too large for "
+                 "this machine)\n";
+    return 1;
   } catch (const std::exception& e) {
     std::cerr << "spar: " << e.what() << '\n';
     return 1;

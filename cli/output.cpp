@@ -1,12 +1,96 @@
 #include "cli/output.h"
 
+#include <CLI/CLI.hpp>
 #include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <iostream>
+#include <limits>
+#include <sstream>
+
+#include "engine/parallel.h"
 
 namespace spar {
 namespace cli {
+namespace {
+
+// The name an option is spoken of by: the long one of "-n,--count", else the first.
+std::string display_name(const std::string& names) {
+  std::string first, part;
+  std::stringstream in(names);
+  while (std::getline(in, part, ',')) {
+    if (first.empty()) first = part;
+    if (part.rfind("--", 0) == 0) return part;
+  }
+  return first;
+}
+
+// "must be ..." for values under `low`: "a positive integer" for 1.
+std::string at_least(int64_t low) {
+  if (low == 1) return "a positive integer";
+  if (low == 0) return "zero or a positive integer";
+  return "an integer of at least " + std::to_string(low);
+}
+
+enum class Reading { kNumber, kNotANumber, kTooLarge, kTooSmall };
+
+// Reads decimal digits with an optional leading '-', and nothing else ("+5", "5.0", "1e3" and
+// " 5" are not integers here). kTooLarge and kTooSmall: past the range of int64_t.
+Reading read_integer(const std::string& text, int64_t& value) {
+  const bool negative = !text.empty() && text[0] == '-';
+  size_t i = negative ? 1 : 0;
+  if (i == text.size()) return Reading::kNotANumber;
+  constexpr uint64_t kLargest = std::numeric_limits<int64_t>::max();
+  uint64_t magnitude = 0;
+  bool overflow = false;
+  for (; i < text.size(); ++i) {
+    if (text[i] < '0' || text[i] > '9') return Reading::kNotANumber;
+    const uint64_t digit = static_cast<uint64_t>(text[i] - '0');
+    if (overflow || magnitude > (kLargest + 1 - digit) / 10)
+      overflow = true;
+    else
+      magnitude = magnitude * 10 + digit;
+  }
+  if (overflow || magnitude > kLargest + (negative ? 1 : 0))
+    return negative ? Reading::kTooSmall : Reading::kTooLarge;
+  value = negative ? static_cast<int64_t>(0 - magnitude) : static_cast<int64_t>(magnitude);
+  return Reading::kNumber;
+}
+
+}  // namespace
+
+CLI::Option* add_integer_option(CLI::App& command, const std::string& names,
+                                const std::string& help, int64_t low, int64_t high,
+                                std::function<void(int64_t)> use) {
+  const std::string must = "spar " + command.get_name() + ": " + display_name(names) + " must be ";
+  CLI::Option* option = command.add_option_function<std::string>(
+      names,
+      [must, low, high, use](const std::string& text) {
+        int64_t v = 0;
+        const Reading r = read_integer(text, v);
+        if (r == Reading::kNotANumber)
+          throw ArgumentError(must + at_least(low) + ", not '" + text + "'");
+        if (r == Reading::kTooSmall || (r == Reading::kNumber && v < low))
+          throw ArgumentError(must + at_least(low) + ", not " + text);
+        if (r == Reading::kTooLarge || v > high)
+          throw ArgumentError(must + "at most " + std::to_string(high) + ", not " + text);
+        use(v);
+      },
+      help);
+  option->type_name("N");
+  return option;
+}
+
+CLI::Option* add_integer_option(CLI::App& command, const std::string& names, int64_t& value,
+                                const std::string& help, int64_t low, int64_t high) {
+  int64_t* target = &value;
+  return add_integer_option(command, names, help, low, high, [target](int64_t v) { *target = v; });
+}
+
+void add_threads_option(CLI::App& command) {
+  add_integer_option(command, "--threads", "Threads to use (default: all cores)", 1, kMaxThreads,
+                     [](int64_t n) { set_thread_count(static_cast<int>(n)); });
+}
 
 void print_table(const std::vector<std::string>& header,
                  const std::vector<std::vector<std::string>>& rows) {

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <filesystem>
 #include <iostream>
+#include <limits>
 
 #include "cli/commands.h"
 #include "cli/output.h"
@@ -37,18 +38,38 @@ int64_t class_index(const SavedGenerator& g, const std::string& given) {
             (names.empty() ? " (the generator is not class-conditional)" : "; classes: " + names));
 }
 
+constexpr int64_t kLargestSeed = std::numeric_limits<int64_t>::max();
+
+// Refuses, before anything is loaded or written, an -o that names a folder and an --into that
+// names something else.
+void check_sample_destination(const std::string& output, const std::string& into) {
+  std::error_code ec;
+  if (!output.empty() && (output.back() == '/' || fs::is_directory(output, ec)))
+    raise(ErrorKind::kBadArgument, output +
+                                       ": names a folder; pass a file such as grid.png to -o, or "
+                                       "use --into to write one picture per sample into a folder");
+  if (!into.empty() && fs::exists(into, ec) && !fs::is_directory(into, ec))
+    raise(ErrorKind::kBadArgument,
+          into + ": exists and is not a folder; --into needs a folder (made if missing)");
+}
+
 struct SampleOptions {
   std::string source, output, into, class_name;
   int64_t count = 64, seed = 1;
 };
 
 int run_sample(const SampleOptions& o) {
+  check_sample_destination(o.into.empty() && o.output.empty() ? "samples.png" : o.output, o.into);
   SavedGenerator g = load_generator(o.source);
   const int64_t c = class_index(g, o.class_name);
   const Tensor<float> samples = generate_samples(g, o.count, static_cast<uint64_t>(o.seed), c);
   const bool pictures = has_pictures(g.recipe, g.sample_shape);
   if (!o.into.empty()) {
-    fs::create_directories(o.into);
+    std::error_code ec;
+    fs::create_directories(o.into, ec);
+    if (ec)
+      raise(ec == std::errc::not_a_directory ? ErrorKind::kBadArgument : ErrorKind::kIo,
+            o.into + ": cannot make the folder: " + ec.message());
     if (!pictures || g.sample_shape.rank() == 1) {
       const std::string path = (fs::path(o.into) / "samples.csv").string();
       write_samples_table(samples, path);
@@ -89,16 +110,17 @@ Subcommand add_sample(CLI::App& parent) {
       "Generate new samples with a run's weight-averaged generator: a grid picture, or one\n"
       "file per sample.\nExample: spar sample runs/swatches -n 64 -o new.png --seed 7");
   app->add_option("source", o->source, "Run folder or generator.spar file")->required();
-  app->add_option("-n,--count", o->count, "How many samples")->check(CLI::Range(1, 100000));
+  add_integer_option(*app, "-n,--count", o->count, "How many samples (default 64)", 1, 100000);
   auto* output = app->add_option("-o,--output", o->output,
                                  "Grid picture to write (.png), or .csv for numbers "
                                  "(default: samples.png)");
   app->add_option("--into", o->into, "Folder to write one picture per sample into")
       ->excludes(output);
-  app->add_option("--seed", o->seed, "Seed of the latent vectors (default 1)")
-      ->check(CLI::NonNegativeNumber);
+  add_integer_option(*app, "--seed", o->seed, "Seed of the latent vectors (default 1)", 0,
+                     kLargestSeed);
   app->add_option("--class", o->class_name,
                   "Class to generate (name or number), for class-conditional runs");
+  add_threads_option(*app);
   return {app, [o] { return run_sample(*o); }};
 }
 
@@ -173,11 +195,11 @@ Subcommand add_evaluate(CLI::App& parent) {
       "samples (Srivastava et al. 2017). Labelled data: how generated samples spread over\n"
       "the classes of their nearest training samples.\nExample: spar evaluate runs/ring8 --json");
   app->add_option("folder", o->folder, "Run folder or generator.spar file")->required();
-  app->add_option("-n,--count", o->count, "Samples to judge (default 2500)")
-      ->check(CLI::Range(1, 1000000));
-  app->add_option("--seed", o->seed, "Seed of the latent vectors (default 1)")
-      ->check(CLI::NonNegativeNumber);
+  add_integer_option(*app, "-n,--count", o->count, "Samples to judge (default 2500)", 1, 1000000);
+  add_integer_option(*app, "--seed", o->seed, "Seed of the latent vectors (default 1)", 0,
+                     kLargestSeed);
   app->add_flag("--json", o->json, "Print the figures as JSON");
+  add_threads_option(*app);
   return {app, [o] { return run_evaluate(*o); }};
 }
 

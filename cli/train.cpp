@@ -10,16 +10,20 @@
 
 #include "cli/commands.h"
 #include "cli/output.h"
-#include "engine/parallel.h"
 #include "recipes/run.h"
 
 namespace spar {
 namespace cli {
 namespace {
 
+// The limits of training.steps and training.seed in recipes/recipe.cpp.
+constexpr int64_t kMostSteps = 1000000000000, kLargestSeed = 9000000000000000000;
+
 std::atomic<bool> stop_requested{false};
+std::atomic<int> stop_signal{0};  // the signal that asked to stop: SIGINT or SIGTERM
 
 extern "C" void on_stop_signal(int signal) {
+  stop_signal.store(signal);
   stop_requested.store(true);
   // A second Ctrl-C ends the process at once; files are written atomically, so nothing is
   // left half-written either way.
@@ -33,6 +37,10 @@ class ProgressView {
   explicit ProgressView(bool quiet) : quiet_(quiet), terminal_(isatty(STDERR_FILENO) != 0) {}
 
   void update(const RunProgress& p) {
+    if (!p.warning.empty()) {  // shown even when quiet: the run may be going nowhere
+      if (terminal_ && !quiet_) std::fputs("\r\033[K", stderr);
+      std::fprintf(stderr, "spar: warning: %s\n", p.warning.c_str());
+    }
     if (quiet_) return;
     const bool last = p.step == p.total_steps;
     if (terminal_) {
@@ -71,15 +79,15 @@ class ProgressView {
 struct TrainOptions {
   std::string recipe, out;
   int64_t steps = 0, seed = -1;
-  int threads = 0;
   std::vector<std::string> settings;
   bool force = false, quiet = false;
 };
 
 // Trains `run` to `total` steps and reports how it ended. Exit code: 0 finished, 1 a
-// numerical failure, 130 interrupted (the shell's code for Ctrl-C).
+// numerical failure, 130 stopped by SIGINT (Ctrl-C), 143 by SIGTERM (the shell's 128 + signal).
 int train_to(Run& run, int64_t total, bool quiet) {
   stop_requested.store(false);
+  stop_signal.store(0);
   std::signal(SIGINT, on_stop_signal);
   std::signal(SIGTERM, on_stop_signal);
   ProgressView view(quiet);
@@ -97,7 +105,7 @@ int train_to(Run& run, int64_t total, bool quiet) {
       view.finish();
       std::cerr << "spar: stopped at step " << result.step << "; state saved in " << run.folder()
                 << "/state.spar. Continue with: spar resume " << run.folder() << "\n";
-      return 130;
+      return stop_signal.load() == SIGTERM ? 143 : 130;
     case RunEnd::kNumericalFailure:
       view.finish();
       std::cerr << "spar: " << result.message << "; the last good checkpoint (step " << result.step
@@ -107,12 +115,7 @@ int train_to(Run& run, int64_t total, bool quiet) {
   return 1;
 }
 
-void use_threads(int threads) {
-  if (threads > 0) set_thread_count(threads);
-}
-
 int run_train(const TrainOptions& o) {
-  use_threads(o.threads);
   Recipe recipe = load_recipe(o.recipe);
   for (const std::string& s : o.settings) apply_setting(recipe, s, "--set " + s);
   if (o.steps > 0) recipe.steps = o.steps;
@@ -131,16 +134,16 @@ Subcommand add_train(CLI::App& parent) {
       "Example: spar train swatches --out runs/swatches --steps 2000 --set training.batch=32");
   app->add_option("recipe", o->recipe, "Preset name or recipe file (.toml)")->required();
   app->add_option("--out", o->out, "Run folder to create")->required();
-  app->add_option("--steps", o->steps, "Total generator steps (default: the recipe's)")
-      ->check(CLI::PositiveNumber);
-  app->add_option("--seed", o->seed, "Run seed (default: the recipe's)")
-      ->check(CLI::NonNegativeNumber);
-  app->add_option("--threads", o->threads, "Threads to use (default: all cores)")
-      ->check(CLI::PositiveNumber);
+  add_integer_option(*app, "--steps", o->steps, "Total generator steps (default: the recipe's)", 1,
+                     kMostSteps);
+  add_integer_option(*app, "--seed", o->seed, "Run seed (default: the recipe's)", 0, kLargestSeed);
+  add_threads_option(*app);
   app->add_option("--set", o->settings, "Override a recipe key, e.g. --set objective.name=hinge")
       ->take_all()
       ->allow_extra_args(false);
-  app->add_flag("--force", o->force, "Replace the run in an existing, non-empty folder");
+  app->add_flag("--force", o->force,
+                "Replace the run in an existing, non-empty folder (removes only the files a run "
+                "writes)");
   app->add_flag("--quiet", o->quiet, "Print no progress");
   return {app, [o] { return run_train(*o); }};
 }
@@ -148,7 +151,7 @@ Subcommand add_train(CLI::App& parent) {
 struct ResumeOptions {
   std::string folder;
   int64_t steps = 0;
-  int threads = 0;
+  std::vector<std::string> settings;
   bool quiet = false;
 };
 
@@ -159,15 +162,19 @@ Subcommand add_resume(CLI::App& parent) {
       "Continue a stopped or finished run from its state.spar, exactly as if it had not\n"
       "stopped.\nExample: spar resume runs/swatches --steps 5000");
   app->add_option("folder", o->folder, "Run folder")->required();
-  app->add_option("--steps", o->steps,
-                  "Continue until this many steps are done in all (default: the recipe's)")
-      ->check(CLI::PositiveNumber);
-  app->add_option("--threads", o->threads, "Threads to use (default: all cores)")
-      ->check(CLI::PositiveNumber);
+  add_integer_option(*app, "--steps", o->steps,
+                     "Continue until this many steps are done in all (default: the recipe's)", 1,
+                     kMostSteps);
+  add_threads_option(*app);
+  app->add_option("--set", o->settings,
+                  "Change a key of the run on purpose, e.g. --set "
+                  "critic_optimiser.learning_rate=1e-4 (noted in history.txt; not data.*, "
+                  "model.* or training.seed)")
+      ->take_all()
+      ->allow_extra_args(false);
   app->add_flag("--quiet", o->quiet, "Print no progress");
   return {app, [o] {
-            use_threads(o->threads);
-            Run run = Run::reopen(o->folder);
+            Run run = Run::reopen(o->folder, o->settings);
             const int64_t total = o->steps > 0 ? o->steps : run.recipe().steps;
             if (o->steps > 0) run.plan_steps(total);
             if (total <= run.steps_done()) {
@@ -182,7 +189,7 @@ Subcommand add_resume(CLI::App& parent) {
 struct DemoOptions {
   std::string out = "spar-demo";
   int64_t steps = 0;
-  bool quiet = false;
+  bool force = false, quiet = false;
 };
 
 Subcommand add_demo(CLI::App& parent) {
@@ -191,18 +198,22 @@ Subcommand add_demo(CLI::App& parent) {
       "demo",
       "Train the swatches preset (procedural fabric swatches, about three minutes on two\n"
       "cores) into ./spar-demo and say where the pictures are.\nExample: spar demo");
-  app->add_option("--out", o->out, "Run folder (replaced if it holds an earlier demo)");
-  app->add_option("--steps", o->steps, "Generator steps (default: the preset's)")
-      ->check(CLI::PositiveNumber);
+  app->add_option("--out", o->out, "Run folder to create (default ./spar-demo)");
+  app->add_flag("--force", o->force,
+                "Replace the run in an existing, non-empty folder (removes only the files a run "
+                "writes)");
+  add_integer_option(*app, "--steps", o->steps, "Generator steps (default: the preset's)", 1,
+                     kMostSteps);
+  add_threads_option(*app);
   app->add_flag("--quiet", o->quiet, "Print no progress");
   return {app, [o] {
             Recipe recipe = load_recipe("swatches");
             if (o->steps > 0) recipe.steps = o->steps;
+            Run run = Run::start(o->out, recipe, o->force);
             if (!o->quiet)
               std::cerr << "spar demo: training on " << recipe.swatch_count
                         << " procedural fabric swatches for " << recipe.steps << " steps into "
                         << o->out << "/\n";
-            Run run = Run::start(o->out, recipe, true);
             const int code = train_to(run, recipe.steps, o->quiet);
             if (code == 0)
               std::cout << "Pictures: " << run.samples_path(run.steps_done())
