@@ -507,8 +507,9 @@ Run Run::start(const std::string& folder, const Recipe& given, bool force) {
   run.run_id_ = new_run_id();
   run.write_recipe_file();
   write_text_atomically(path_in(folder, kLogFile), std::string(kLogHeader) + "\n");
-  run.save_checkpoints();
+  // The picture before the checkpoint: a state.spar at a picture's step promises the picture.
   run.write_samples();
+  run.save_checkpoints();
   return run;
 }
 
@@ -577,6 +578,12 @@ Run Run::reopen(const std::string& folder, const std::vector<std::string>& setti
     if (row.step <= run.steps_done()) text += log_line(row) + "\n";
   write_text_atomically(log_path, text);
   fs::create_directories(fs::path(folder) / "samples");
+  // A kill between a checkpoint and its step's picture (runs from before the picture came
+  // first) leaves the picture missing; it is drawn from the state, so it is the same one.
+  const int64_t step = run.steps_done();
+  if ((step % run.recipe_.sample_every == 0) && !fs::exists(run.samples_path(step)) &&
+      !fs::exists(fs::path(run.samples_path(step)).replace_extension(".csv")))
+    run.write_samples();
   return run;
 }
 
