@@ -37,7 +37,7 @@ const char* const kLockFile = "run.lock";
 const char* const kRunFiles[] = {kRecipeFile, kLogFile,       kCurvesFile,
                                  kStateFile,  kGeneratorFile, kHistoryFile};
 const char* const kLogHeader = "step,seconds,critic_loss,generator_loss,real_score,fake_score";
-// recipe.toml's first line names the run: "# spar run <id>: ...".
+// recipe.toml's first line names the run: "# spar run <id>, recipe <hash>: ..." (recipe_file_text).
 const std::string kRecipeHeader = "# spar run ";
 
 std::string path_in(const std::string& folder, const std::string& name) {

@@ -173,7 +173,7 @@ void write_text(const std::string& path, const std::string& text) {
   out << text;
 }
 
-TEST_CASE("--force removes only what a run writes; stale temporaries go too", "[run]") {
+TEST_CASE("a forced start removes only what a run writes; stale temporaries go too", "[run]") {
   ScratchDir dir;
   const Recipe r = small_points();
   const std::string folder = dir.folder("run");
