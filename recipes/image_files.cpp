@@ -84,16 +84,20 @@ std::string image_format_of(const unsigned char* p, size_t n) {
   return "";
 }
 
-// Walks the JPEG markers (ITU-T T.81, annex B): every segment but SOI, EOI, RSTn and TEM
-// carries a 2-byte big-endian length that counts itself; after a start-of-scan segment,
-// entropy-coded data runs to the next marker (0xFF followed by neither 0x00, a stuffed byte,
-// nor a restart marker). A DHT segment (0xC4) holds tables of a class/id byte, 16 code counts
+// Walks the JPEG markers (ITU-T T.81, annex B) as stb's decoder reads them: every segment but
+// SOI, EOI, RSTn and TEM carries a 2-byte big-endian length that counts itself; bytes other
+// than 0xFF between segments are skipped; after a start-of-scan segment, entropy-coded data
+// runs to the next marker (0xFF followed by neither 0x00, a stuffed byte, nor a restart
+// marker). A DHT segment (0xC4) holds tables of a class/id byte, 16 code counts
 // and as many symbols as the counts add up to, at most 256 (T.81 B.2.4.2).
 std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
   if (image_format_of(p, n) != "JPEG") return "";
   size_t i = 2;
   while (i < n) {
-    if (p[i] != 0xFF) return "";        // not a marker where one belongs: the decoder refuses it
+    if (p[i] != 0xFF) {  // a stray byte between segments: the decoder skips it, so do we
+      ++i;
+      continue;
+    }
     while (i < n && p[i] == 0xFF) ++i;  // fill bytes
     if (i >= n) return "";
     const unsigned marker = p[i++];

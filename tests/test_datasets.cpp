@@ -542,6 +542,15 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
                     bad_jpeg +
                         ": damaged JPEG: a Huffman table (DHT segment at byte 2) declares "
                         "4080 codes, more than the 256 a table can hold");
+  // Found by fuzzing: the decoder skips stray bytes between segments, so a table behind one
+  // must be checked too.
+  const std::string behind =
+      jpeg.substr(0, 2) + std::string("\xff\xe0\x00\x03\x00a", 6) + dht + jpeg.substr(2);
+  const std::string stray_jpeg = alone("stray.jpg", behind);
+  require_bad_input([&] { load_image_folder(folder_of(stray_jpeg), {}); },
+                    stray_jpeg +
+                        ": damaged JPEG: a Huffman table (DHT segment at byte 8) declares "
+                        "4080 codes");
 }
 
 // ---- IDX ----------------------------------------------------------------------------------
