@@ -192,8 +192,9 @@ Header read_header(ByteSource& in, const std::string& path) {
   const int64_t element = idx_element_bytes(h.type);
   const int64_t count = checked_element_count(h.extents.data(), h.extents.size());
   if (count < 0)
-    fail(path, "the extents " + extents_text(h.extents) + " hold more than " +
-                   std::to_string(kMaxElements) + " elements");
+    fail(path, "the extents " + extents_text(h.extents) + " exceed the limit of " +
+                   std::to_string(kMaxElements) +
+                   " elements a tensor may have (zero extents aside)");
   h.count = count;
   h.data_bytes = count * element;
 

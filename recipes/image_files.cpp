@@ -132,6 +132,29 @@ std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
   return "";
 }
 
+std::string check_bmp_length(const unsigned char* p, size_t n) {
+  // BITMAPFILEHEADER (14 bytes) then an info header of at least 40 bytes: width at byte 18,
+  // height at 22 (negative: top-down), bits per pixel at 28, compression at 30 (0: none,
+  // 3 and 6: bit fields; both store rows as they are, each padded to 4 bytes).
+  if (n < 34) return "";
+  const auto u32 = [p](size_t at) {
+    return uint32_t{p[at]} | uint32_t{p[at + 1]} << 8 | uint32_t{p[at + 2]} << 16 |
+           uint32_t{p[at + 3]} << 24;
+  };
+  const uint64_t offset = u32(10);
+  const int64_t width = static_cast<int32_t>(u32(18)), height = static_cast<int32_t>(u32(22));
+  const uint64_t bits = p[28] | (p[29] << 8), compression = u32(30);
+  if (compression != 0 && compression != 3 && compression != 6) return "";
+  if (u32(14) < 40 || width <= 0 || height == 0 || bits == 0) return "";
+  const uint64_t row = (bits * static_cast<uint64_t>(width) + 31) / 32 * 4;
+  const uint64_t rows = static_cast<uint64_t>(height < 0 ? -height : height);
+  const uint64_t needed = offset + row * rows;
+  if (needed <= n) return "";
+  return "truncated: its header claims " + std::to_string(width) + "x" + std::to_string(rows) +
+         " uncompressed pixels, " + std::to_string(needed) + " bytes, but the file holds " +
+         std::to_string(n);
+}
+
 DecodedImage decode_image_file(const std::string& path, int64_t pixel_limit,
                                const std::string& limit_key) {
   try {
@@ -161,6 +184,10 @@ DecodedImage decode_image_file(const std::string& path, int64_t pixel_limit,
     if (pixels > pixel_limit)
       fail(path, std::to_string(w) + "x" + std::to_string(h) + " pixels, more than the limit of " +
                      std::to_string(pixel_limit) + " (" + limit_key + ")");
+    if (format == "BMP") {
+      const std::string bad = check_bmp_length(bytes.data(), bytes.size());
+      if (!bad.empty()) fail(path, bad);
+    }
     DecodedImage image;
     image.pixels.reset(
         stbi_load_from_memory(bytes.data(), size, &image.width, &image.height, &image.channels, 0),

@@ -41,4 +41,9 @@ std::string image_format_of(const unsigned char* bytes, size_t size);
 // or the bytes are not a JPEG file (exposed for tests).
 std::string check_jpeg_huffman_tables(const unsigned char* bytes, size_t size);
 
+// A message when an uncompressed BMP file is shorter than the rows its header claims (the
+// decoder would read zeros for the missing bytes, at the full claimed size), else "" (exposed
+// for tests).
+std::string check_bmp_length(const unsigned char* bytes, size_t size);
+
 }  // namespace spar

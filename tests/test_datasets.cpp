@@ -394,7 +394,7 @@ void check_edge(const Dataset& d, int64_t i, bool vertical_edge,
 
 // A black/white edge away from the centre tells a centre crop from a corner crop, and a mirror
 // image from the right one.
-TEST_CASE("loose images: unlabelled; a black/white edge lands where the centre crop puts it",
+TEST_CASE("loose images: unlabelled, a black/white edge lands where the centre crop puts it",
           "[datasets]") {
   ScratchDir dir;
   const std::string root = dir.folder("loose");
@@ -513,6 +513,13 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   require_bad_input([&] { load_image_folder(folder_of(big_png), {}); },
                     big_png + ": 20000x20000 pixels, more than the limit");
 
+  // Found by fuzzing: a 54-byte BMP claiming 3 × 8,323,074 pixels (under the limit) was
+  // decoded at full size from zeros read past its end. 24-bit rows of 3 pixels take 12 bytes.
+  const std::string short_bmp = alone("short.bmp", bmp_header(3, 8323074));
+  require_bad_input([&] { load_image_folder(folder_of(short_bmp), {}); },
+                    short_bmp + ": truncated: its header claims 3x8323074 uncompressed pixels, " +
+                        std::to_string(54 + 12 * 8323074) + " bytes, but the file holds 54");
+
   // The limit is adjustable: an 8 × 8 image passes a limit of 64 pixels, not one of 63.
   const std::string small = alone("small.png", "");
   write_png(small, 8, 8, {50});
@@ -608,7 +615,7 @@ std::string idx_file(unsigned char type, const std::vector<uint32_t>& extents,
   return b;
 }
 
-TEST_CASE("small IDX files: exact values and labels; mismatches name the file", "[datasets]") {
+TEST_CASE("small IDX files: exact values and labels, mismatches name the file", "[datasets]") {
   ScratchDir dir;
   const std::string images =
       write_bytes(dir.file("x.idx"), idx_file(0x08, {3, 1, 2}, {0, 255, 51, 204, 127, 128}));

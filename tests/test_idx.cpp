@@ -298,13 +298,13 @@ TEST_CASE("idx: an extents product past the engine's element limit") {
   require_bad_idx(
       write_plain(dir.file("huge"),
                   idx_file(0x08, {0xffffffffu, 0xffffffffu, 0xffffffffu, 0xffffffffu}, {})),
-      "more than 281474976710656 elements");
+      "exceed the limit of 281474976710656 elements");
   // 2^31 · 2^31 · 2 = 2^63 one-byte elements: one past the largest int64.
   require_bad_idx(write_plain(dir.file("edge"), idx_file(0x08, {1u << 31, 1u << 31, 2}, {})),
-                  "more than");
+                  "exceed the limit");
   // 2^24 · 2^24 + a row = just past kMaxElements (2^48)...
   require_bad_idx(write_gzip(dir.file("edge.gz"), idx_file(0x0E, {(1u << 24) + 1, 1u << 24}, {})),
-                  "more than");
+                  "exceed the limit");
   // ...while 2^48 float64 elements (2^51 bytes) are counted, and are then too long for the file.
   require_bad_idx(write_gzip(dir.file("fits.gz"), idx_file(0x0E, {1u << 24, 1u << 24}, {})),
                   "truncated");
@@ -312,7 +312,7 @@ TEST_CASE("idx: an extents product past the engine's element limit") {
   // overflowed the element count while building its empty tensor (regression).
   require_bad_idx(
       write_plain(dir.file("zero-absurd"), idx_file(0x08, {0xffffffffu, 0xffffffffu, 0}, {})),
-      "more than");
+      "exceed the limit");
   // An honest empty file: a zero extent makes the count zero.
   CHECK(read_idx_integers(write_plain(dir.file("zero"), idx_file(0x08, {60000, 28, 0}, {})))
             .values.empty());

@@ -219,7 +219,7 @@ TEMPLATE_TEST_CASE("fills advance the position by the blocks they use", "[random
   CHECK(rng.position() == (30 + kPerBlock - 1) / kPerBlock);
 }
 
-TEMPLATE_TEST_CASE("same seed and stream give identical tensors; other streams differ", "[random]",
+TEMPLATE_TEST_CASE("same seed and stream give identical tensors, other streams differ", "[random]",
                    float, double) {
   const Shape shape{64, 33};
   Rng a(2024, 3), b(2024, 3), other_stream(2024, 4), other_seed(2025, 3);

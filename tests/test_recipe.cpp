@@ -41,7 +41,7 @@ TEST_CASE("every preset parses and survives a round trip through to_toml", "[rec
   CHECK_FALSE(load_recipe("swatches").conditional);
 }
 
-TEST_CASE("the resolved recipe is valid TOML for any UTF-8 path; other bytes are refused",
+TEST_CASE("the resolved recipe is valid TOML for any UTF-8 path, other bytes are refused",
           "[recipe]") {
   // Regression: a path with a control character trained, but its recipe.toml did not parse
   // again (TOML 1.0 basic strings must escape U+0000 to U+001F and U+007F).

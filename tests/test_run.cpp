@@ -140,7 +140,7 @@ TEST_CASE("stopping and resuming equals running straight through", "[run]") {
   }
 }
 
-TEST_CASE("a saved generator samples; one from another architecture is refused", "[run]") {
+TEST_CASE("a saved generator samples, one from another architecture is refused", "[run]") {
   ScratchDir dir;
   const Recipe r = small_images();
   train(dir.folder("run"), r, 4);
@@ -173,7 +173,7 @@ void write_text(const std::string& path, const std::string& text) {
   out << text;
 }
 
-TEST_CASE("a forced start removes only what a run writes; stale temporaries go too", "[run]") {
+TEST_CASE("a forced start removes only what a run writes, stale temporaries go too", "[run]") {
   ScratchDir dir;
   const Recipe r = small_points();
   const std::string folder = dir.folder("run");
@@ -262,7 +262,7 @@ TEST_CASE("a foreign state.spar and an edited recipe.toml are refused on resume"
         ErrorKind::kBadArgument);
 }
 
-TEST_CASE("data paths are stored absolute; a moved data file names data.path", "[run]") {
+TEST_CASE("data paths are stored absolute, a moved data file names data.path", "[run]") {
   ScratchDir dir;
   const std::string data = dir.folder("data"), recipes = dir.folder("recipes");
   std::string rows;
