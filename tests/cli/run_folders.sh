@@ -64,7 +64,7 @@ for trial in $(seq 1 10); do
   [ "$(grep -c '^200,' race/log.csv)" -eq 1 ] || fail "race $trial: log.csv holds two runs"
 done
 # --force does not take a folder from a live writer.
-"$spar" train ring8 --out held --steps 3000 "${small[@]}" &
+"$spar" train ring8 --out held --steps 1000000 "${small[@]}" &
 holder=$!
 for _ in $(seq 100); do [ -s held/run.lock ] && [ -e held/state.spar ] && break; sleep 0.05; done
 "$spar" train ring8 --out held --steps 10 --force "${small[@]}" 2>err.txt
