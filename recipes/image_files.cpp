@@ -22,6 +22,18 @@
 #define STBI_NO_LINEAR
 #define STBI_NO_HDR
 #define STBI_FAILURE_USERMSG
+// stb copies zero bytes from or to a null pointer at times (an empty PNG data chunk before any
+// data), which memcpy does not allow even for zero bytes (UBSan reports it): stb's copies go
+// through one that skips empty copies. <cstring> is included above, so stb's own include of
+// <string.h> does not see the macro.
+namespace spar {
+namespace detail {
+inline void* copy_unless_empty(void* to, const void* from, size_t n) {
+  return n ? std::memcpy(to, from, n) : to;
+}
+}  // namespace detail
+}  // namespace spar
+#define memcpy(to, from, n) ::spar::detail::copy_unless_empty(to, from, n)
 #if defined(__GNUC__)
 #pragma GCC diagnostic push
 #pragma GCC diagnostic ignored "-Wall"
@@ -39,6 +51,7 @@
 #if defined(__GNUC__)
 #pragma GCC diagnostic pop
 #endif
+#undef memcpy
 
 namespace spar {
 namespace {
