@@ -401,19 +401,26 @@ Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape) {
   return out;
 }
 
-template <class T>
-double sum_all(const Tensor<T>& x) {
+// Σ over fixed chunks of x of run(chunk), the chunks' results added in chunk order (so the
+// total does not depend on the thread count).
+template <class T, class Run>
+double add_over_chunks(const Tensor<T>& x, Run run) {
   const int64_t n = x.numel();
   const int64_t chunks = std::max<int64_t>(1, (n + kParallelGrain - 1) / kParallelGrain);
   std::vector<double> partial(static_cast<size_t>(chunks), 0.0);
   const T* p = x.data();
   parallel_for(chunks, true, [&](int64_t c) {
     const int64_t b = c * kParallelGrain, e = std::min(n, b + kParallelGrain);
-    partial[c] = sum_run(p + b, e - b);
+    partial[c] = run(p + b, e - b);
   });
   double s = 0;
   for (double v : partial) s += v;
   return s;
+}
+
+template <class T>
+double sum_all(const Tensor<T>& x) {
+  return add_over_chunks(x, sum_run<T>);
 }
 
 template <class T>
@@ -605,18 +612,9 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis) {
 
 template <class T>
 int64_t first_non_finite(const Tensor<T>& x) {
-  const int64_t n = x.numel();
-  const int64_t chunks = std::max<int64_t>(1, (n + kParallelGrain - 1) / kParallelGrain);
-  std::vector<double> partial(static_cast<size_t>(chunks), 0.0);
+  if (add_over_chunks(x, zero_sum_run<T>) == 0) return -1;  // NaN when any element is not finite
   const T* p = x.data();
-  parallel_for(chunks, true, [&](int64_t c) {
-    const int64_t b = c * kParallelGrain, e = std::min(n, b + kParallelGrain);
-    partial[c] = zero_sum_run(p + b, e - b);
-  });
-  bool finite = true;
-  for (double v : partial) finite &= v == 0;
-  if (finite) return -1;
-  for (int64_t i = 0; i < n; ++i)
+  for (int64_t i = 0; i < x.numel(); ++i)
     if (!std::isfinite(p[i])) return i;
   return -1;
 }

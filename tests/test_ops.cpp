@@ -9,6 +9,7 @@
 #include "engine/gradient_check.h"
 #include "engine/kernels.h"
 #include "engine/ops.h"
+#include "engine/parallel.h"
 
 using namespace spar;
 using D = Tensor<double>;
@@ -44,6 +45,28 @@ void flat_square_adjoint(const detail::Node<double>& n, const V&, const V& g,
                          const std::vector<bool>&, std::vector<V>& gi) {
   gi[0] = multiply(g, V(n.inputs[0].value().clone()) * 2.0);
 }
+
+TEST_CASE("first_non_finite finds the first NaN or infinity, in any chunk", "[ops]") {
+  // IEEE 754: 0·±∞ and 0·NaN are NaN, which the vectorised test relies on.
+  const int64_t n = 3 * kParallelGrain + 5;  // several chunks and a short last one
+  Tensor<float> x = Tensor<float>::full({n}, 1e38f);
+  CHECK(kernels::first_non_finite(x) == -1);
+  for (const int64_t at : {int64_t{0}, kParallelGrain + 7, n - 1}) {
+    for (const float bad :
+         {std::numeric_limits<float>::infinity(), -std::numeric_limits<float>::infinity(),
+          std::numeric_limits<float>::quiet_NaN()}) {
+      Tensor<float> y = x.clone();
+      y.mutable_data()[at] = bad;
+      CHECK(kernels::first_non_finite(y) == at);
+      if (at + 1 < n) {
+        y.mutable_data()[n - 1] = bad;  // a later one does not hide the first
+        CHECK(kernels::first_non_finite(y) == at);
+      }
+    }
+  }
+  CHECK(kernels::first_non_finite(Tensor<float>::zeros({0})) == -1);
+}
+
 }  // namespace
 
 TEST_CASE("the checker fails a wrong adjoint, and a first-order-only adjoint at second order",
