@@ -108,7 +108,7 @@ Subcommand add_sample(CLI::App& parent) {
   CLI::App* app = parent.add_subcommand(
       "sample",
       "Generate new samples with a run's weight-averaged generator: a grid picture, or one\n"
-      "file per sample.\nExample: spar sample runs/swatches -n 64 -o new.png --seed 7");
+      "file per sample.\nExample: spar sample trained/swatches -n 64 -o new.png --seed 7");
   app->add_option("source", o->source, "Run folder or generator.spar file")->required();
   add_integer_option(*app, "-n,--count", o->count, "How many samples (default 64)", 1, 100000);
   auto* output = app->add_option("-o,--output", o->output,
@@ -193,7 +193,8 @@ Subcommand add_evaluate(CLI::App& parent) {
       "evaluate",
       "Judge a run's generator. 2-D mixtures: modes captured and the share of high-quality\n"
       "samples (Srivastava et al. 2017). Labelled data: how generated samples spread over\n"
-      "the classes of their nearest training samples.\nExample: spar evaluate runs/ring8 --json");
+      "the classes of their nearest training samples.\nExample: spar evaluate trained/ring8 "
+      "--json");
   app->add_option("folder", o->folder, "Run folder or generator.spar file")->required();
   add_integer_option(*app, "-n,--count", o->count, "Samples to judge (default 2500)", 1, 1000000);
   add_integer_option(*app, "--seed", o->seed, "Seed of the latent vectors (default 1)", 0,
@@ -212,7 +213,8 @@ int run_inspect(const InspectOptions& o) {
   std::string path = o.file;
   if (fs::is_directory(path)) path = (fs::path(path) / "state.spar").string();
   if (!fs::exists(path)) raise(ErrorKind::kBadArgument, path + ": does not exist");
-  const Archive a = Archive::read_file(path);
+  Archive a = Archive::read_file(path);
+  const int64_t format = upgrade_run_records(a);
   const auto text_of = [&](const char* name) {
     return a.contains(name) && a.kind(name) == RecordKind::kText ? a.text(name) : std::string();
   };
@@ -221,6 +223,9 @@ int run_inspect(const InspectOptions& o) {
   if (a.contains("step") && a.kind("step") == RecordKind::kInteger)
     std::cout << ", step " << a.integer("step");
   std::cout << "\n";
+  if (format < kRunFormat)
+    std::cout << "written in run format " << format << "; records are shown under the names "
+              << "they have now (docs/file-formats.md)\n";
   const std::string recipe_text = text_of("recipe");
   if (!recipe_text.empty()) {
     const Recipe r = parse_recipe(recipe_text, path + " (its recipe)");
@@ -235,12 +240,12 @@ int run_inspect(const InspectOptions& o) {
     const RecordKind kind = a.kind(name);
     std::string shape = "", value = "";
     if (kind == RecordKind::kFloat32Tensor) {
-      const Shape s = a.tensor<float>(name).shape();
+      const Shape s = a.tensor_shape(name);
       shape = s.str();
-      if (name.rfind("generator.", 0) == 0 || name.rfind("critic.", 0) == 0)
-        parameters += s.numel();
+      if (name.rfind("generator/", 0) == 0 || name.rfind("critic/", 0) == 0)
+        parameters += s.element_count();
     } else if (kind == RecordKind::kFloat64Tensor) {
-      shape = a.tensor<double>(name).shape().str();
+      shape = a.tensor_shape(name).str();
     } else if (kind == RecordKind::kInteger) {
       value = std::to_string(a.integer(name));
     } else {
@@ -259,7 +264,7 @@ Subcommand add_inspect(CLI::App& parent) {
   CLI::App* app = parent.add_subcommand(
       "inspect",
       "Show what a checkpoint holds: recipe, step, every record's name, kind and shape.\n"
-      "Example: spar inspect runs/swatches/generator.spar");
+      "Example: spar inspect trained/swatches/generator.spar");
   app->add_option("file", o->file, "A .spar file, or a run folder (for its state.spar)")
       ->required();
   app->add_flag("--recipe", o->recipe, "Also print the whole recipe");

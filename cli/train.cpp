@@ -1,5 +1,6 @@
 // `spar train`, `spar resume` and `spar demo`: run training in a run folder, showing progress,
 // and stop cleanly (with saved checkpoints) on Ctrl-C or SIGTERM.
+#include <sys/ioctl.h>
 #include <unistd.h>
 
 #include <CLI/CLI.hpp>
@@ -60,17 +61,27 @@ class ProgressView {
   }
 
  private:
-  static std::string line(const RunProgress& p) {
+  // "step 1200 of 2000, 41.2 steps/s, 1m05s left | losses: critic 0.412, generator 1.203 |
+  // scores: real 0.810, fake 0.220", in log.csv's words; on a terminal, cut to its width so
+  // that the line can be rewritten in place.
+  std::string line(const RunProgress& p) const {
     const double rate = p.seconds > 0 ? p.steps_this_call / p.seconds : 0;
-    const double eta = rate > 0 ? (p.total_steps - p.step) / rate : 0;
-    char buf[256];
+    const double left = rate > 0 ? (p.total_steps - p.step) / rate : 0;
+    char buf[320];
     std::snprintf(buf, sizeof buf,
-                  "step %lld/%lld  %.1f steps/s  ETA %s  loss D %.3f G %.3f  D(x) %.3f  "
-                  "D(G(z)) %.3f",
+                  "step %lld of %lld, %.1f steps/s, %s left | losses: critic %.3f, generator "
+                  "%.3f | scores: real %.3f, fake %.3f",
                   static_cast<long long>(p.step), static_cast<long long>(p.total_steps), rate,
-                  format_duration(eta).c_str(), p.last.critic_loss, p.last.generator_loss,
+                  format_duration(left).c_str(), p.last.critic_loss, p.last.generator_loss,
                   p.last.real_score, p.last.fake_score);
-    return buf;
+    std::string text = buf;
+    if (terminal_) {
+      winsize size{};
+      if (::ioctl(STDERR_FILENO, TIOCGWINSZ, &size) == 0 && size.ws_col > 1 &&
+          text.size() >= size.ws_col)
+        text.resize(size.ws_col - 1);
+    }
+    return text;
   }
   bool quiet_, terminal_;
   double shown_at_ = -1;
@@ -116,8 +127,10 @@ int train_to(Run& run, int64_t total, bool quiet) {
 }
 
 int run_train(const TrainOptions& o) {
-  Recipe recipe = load_recipe(o.recipe);
-  for (const std::string& s : o.settings) apply_setting(recipe, s, "--set " + s);
+  std::vector<std::string> notes;  // keys given under an old name
+  Recipe recipe = load_recipe(o.recipe, &notes);
+  for (const std::string& s : o.settings) apply_setting(recipe, s, "--set " + s, &notes);
+  for (const std::string& note : notes) std::cerr << "spar: note: " << note << "\n";
   if (o.steps > 0) recipe.steps = o.steps;
   if (o.seed >= 0) recipe.seed = o.seed;
   Run run = Run::start(o.out, recipe, o.force);
@@ -131,7 +144,7 @@ Subcommand add_train(CLI::App& parent) {
       "Train a GAN from a recipe (a preset name or a TOML file) into a run folder.\n"
       "Presets: ring8, grid25, swatches, swatches-conditional, fashion, fashion-conditional,\n"
       "digits, folder. Ctrl-C stops cleanly; `spar resume` continues.\n"
-      "Example: spar train swatches --out runs/swatches --steps 2000 --set training.batch=32");
+      "Example: spar train swatches --out trained/swatches --steps 2000 --set training.batch=32");
   app->add_option("recipe", o->recipe, "Preset name or recipe file (.toml)")->required();
   app->add_option("--out", o->out, "Run folder to create")->required();
   add_integer_option(*app, "--steps", o->steps, "Total generator steps (default: the recipe's)", 1,
@@ -160,7 +173,7 @@ Subcommand add_resume(CLI::App& parent) {
   CLI::App* app = parent.add_subcommand(
       "resume",
       "Continue a stopped or finished run from its state.spar, exactly as if it had not\n"
-      "stopped.\nExample: spar resume runs/swatches --steps 5000");
+      "stopped.\nExample: spar resume trained/swatches --steps 5000");
   app->add_option("folder", o->folder, "Run folder")->required();
   add_integer_option(*app, "--steps", o->steps,
                      "Continue until this many steps are done in all (default: the recipe's)", 1,

@@ -192,6 +192,24 @@ Archive::Record& Archive::slot(const std::string& name) {
   return records_.back();
 }
 
+void Archive::rename(const std::string& from, const std::string& to) {
+  const auto it = index_.find(from);
+  if (it == index_.end())
+    raise(ErrorKind::kBadArgument, "archive: cannot rename record '" + from + "': no such record");
+  if (from == to) return;
+  if (index_.count(to))
+    raise(ErrorKind::kBadArgument,
+          "archive: cannot rename record '" + from + "' to '" + to + "': that name is taken");
+  if (to.empty() || to.size() > detail::kMaxNameBytes || !detail::valid_utf8(to))
+    raise(ErrorKind::kBadArgument, "archive: cannot rename record '" + from + "': the new name (" +
+                                       std::to_string(to.size()) +
+                                       " bytes) is not 1 to 65535 bytes of valid UTF-8");
+  const size_t position = it->second;
+  index_.erase(it);
+  index_.emplace(to, position);
+  records_[position].name = to;
+}
+
 void Archive::put(const std::string& name, const Tensor<float>& value) {
   if (!value.defined())
     raise(ErrorKind::kBadArgument, "archive: record '" + name + "': undefined tensor");
@@ -307,10 +325,10 @@ void Archive::emit(const std::function<void(const void*, size_t)>& sink) const {
       for (int64_t extent : shape) detail::append_le<uint64_t>(head, static_cast<uint64_t>(extent));
       if (r.kind == RecordKind::kFloat32Tensor) {
         payload = r.f32.data();
-        payload_bytes = static_cast<uint64_t>(r.f32.numel()) * sizeof(float);
+        payload_bytes = static_cast<uint64_t>(r.f32.element_count()) * sizeof(float);
       } else {
         payload = r.f64.data();
-        payload_bytes = static_cast<uint64_t>(r.f64.numel()) * sizeof(double);
+        payload_bytes = static_cast<uint64_t>(r.f64.element_count()) * sizeof(double);
       }
     } else if (r.kind == RecordKind::kInteger) {
       integer = r.integer;  // little-endian host (checked above)
@@ -442,7 +460,7 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
     who = "record '" + name + "'";
 
     Shape shape;
-    int64_t numel = 0;
+    int64_t element_count = 0;
     if (detail::is_tensor(kind)) {
       const uint8_t rank = in.read_le<uint8_t>("the rank of " + who);
       if (rank > kMaxRank)
@@ -461,8 +479,8 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
       }
       // Counted with overflow checks before anything is built (a zero extent does not excuse
       // absurd others: [2^62, 2, 0] is refused).
-      numel = checked_element_count(extents, rank);
-      if (numel < 0)
+      element_count = checked_element_count(extents, rank);
+      if (element_count < 0)
         corrupt(who + " has shape [" + listed + "], more than " + std::to_string(kMaxElements) +
                 " elements");
       shape = Shape(extents, extents + rank);
@@ -485,8 +503,8 @@ Archive Archive::from_bytes(const std::string& bytes, const std::string& label) 
       case RecordKind::kFloat64Tensor: {
         const uint64_t element =
             kind == RecordKind::kFloat32Tensor ? sizeof(float) : sizeof(double);
-        // numel is at most kMaxElements, so this cannot overflow.
-        const uint64_t expected = static_cast<uint64_t>(numel) * element;
+        // element_count is at most kMaxElements, so this cannot overflow.
+        const uint64_t expected = static_cast<uint64_t>(element_count) * element;
         if (expected != payload_bytes)
           corrupt(who + " has shape " + shape.str() + " but a payload of " +
                   std::to_string(payload_bytes) + " bytes");

@@ -50,6 +50,10 @@ class Archive {
   void put(const std::string& name, const Tensor<double>& value);
   void put_int(const std::string& name, int64_t value);
   void put_text(const std::string& name, std::string value);
+  // Gives the record `from` the name `to`, keeping its place and content (reading files
+  // written under older names). Raises kBadArgument when `from` is missing, or when `to` is
+  // taken or not a valid name.
+  void rename(const std::string& from, const std::string& to);
 
   // Readers. Each raises kCorruptCheckpoint "<source>: record '<name>' ..." when the record
   // is missing or holds another kind (a float32 tensor is not converted to double).

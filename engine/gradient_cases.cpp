@@ -24,7 +24,7 @@ class CaseList {
   // Magnitudes in [0.2, 1.5] with random signs: kinks at 0 stay far from ±h.
   D away_from_zero(const Shape& s) {
     D a = rng_.uniform<double>(s, 0.2, 1.5), b = rng_.uniform<double>(s, -1, 1);
-    for (int64_t i = 0; i < a.numel(); ++i) a.mutable_data()[i] *= b.data()[i] < 0 ? -1 : 1;
+    for (int64_t i = 0; i < a.element_count(); ++i) a.mutable_data()[i] *= b.data()[i] < 0 ? -1 : 1;
     return a;
   }
   std::vector<GradientCase> take() { return std::move(cases_); }
@@ -146,8 +146,7 @@ std::vector<GradientCase> operation_gradient_cases() {
   c.check("softmax", [](const Vs& x) { return softmax(x[0], -1); }, {c.any({3, 4})});
   c.check("class_cross_entropy", [](const Vs& x) { return class_cross_entropy(x[0], x[1], 1); },
           {c.any({3, 4}), c.positive({3, 4})});
-  c.check("binary_cross_entropy_from_logits",
-          [](const Vs& x) { return binary_cross_entropy_from_logits(x[0], x[1]); },
+  c.check("logistic_cross_entropy", [](const Vs& x) { return logistic_cross_entropy(x[0], x[1]); },
           {c.any({3, 4}, -5, 5), c.any({3, 4}, 0, 1)});
   // Batch normalisation with batch statistics: dense and image layouts, one value per
   // channel per sample and several.

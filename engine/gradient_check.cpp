@@ -20,7 +20,7 @@ std::string shapes_of(const std::vector<Tensor<double>>& xs) {
 double value_at(const ScalarFunction& f, const std::vector<Tensor<double>>& xs) {
   std::vector<Var<double>> vars;
   for (const Tensor<double>& x : xs) vars.emplace_back(x);
-  return f(vars).item();
+  return f(vars).as_scalar();
 }
 
 std::vector<Tensor<double>> gradient_at(const ScalarFunction& f,
@@ -47,7 +47,7 @@ std::vector<Tensor<double>> moved(const std::vector<Tensor<double>>& xs,
   std::vector<Tensor<double>> out;
   for (size_t i = 0; i < xs.size(); ++i) {
     Tensor<double> y = xs[i].clone();
-    for (int64_t j = 0; j < y.numel(); ++j) y.mutable_data()[j] += t * v[i].data()[j];
+    for (int64_t j = 0; j < y.element_count(); ++j) y.mutable_data()[j] += t * v[i].data()[j];
     out.push_back(y);
   }
   return out;
@@ -63,7 +63,7 @@ GradientCheckResult check_first_order(const GradientCase& c, const GradientCheck
   const double h = options.step;
   for (size_t i = 0; i < xs.size(); ++i) {
     double* p = xs[i].mutable_data();  // our own clone: safe to move element by element
-    for (int64_t j = 0; j < xs[i].numel(); ++j) {
+    for (int64_t j = 0; j < xs[i].element_count(); ++j) {
       const double x0 = p[j];
       p[j] = x0 + h;
       const double up = value_at(c.function, xs);
@@ -101,7 +101,7 @@ GradientCheckResult check_second_order(const GradientCase& c, const GradientChec
   const std::vector<Tensor<double>> up = gradient_at(c.function, moved(c.inputs, v, e));
   const std::vector<Tensor<double>> down = gradient_at(c.function, moved(c.inputs, v, -e));
   for (size_t i = 0; i < analytic.size(); ++i)
-    for (int64_t j = 0; j < analytic[i].numel(); ++j)
+    for (int64_t j = 0; j < analytic[i].element_count(); ++j)
       compare(analytic[i].data()[j], (up[i].data()[j] - down[i].data()[j]) / (2 * e), r);
   r.passed = r.max_rel_error <= options.second_order_tolerance;
   return r;

@@ -41,7 +41,7 @@ Tensor<T> map_chunks(const Tensor<T>& x, Run run) {
   Tensor<T> y = Tensor<T>::uninitialised(x.shape());
   const T* in = x.data();
   T* out = y.mutable_data();
-  parallel_for_chunks(x.numel(), [in, out, run](int64_t begin, int64_t end) {
+  parallel_for_chunks(x.element_count(), [in, out, run](int64_t begin, int64_t end) {
     run(in + begin, out + begin, end - begin);
   });
   return y;
@@ -209,7 +209,7 @@ Tensor<T> broadcast_binary(const Tensor<T>& a, const Tensor<T>& b, const char* n
   T* o = out.mutable_data();
   const T* pa = a.data();
   const T* pb = b.data();
-  walk_all(w, out_shape.numel(),
+  walk_all(w, out_shape.element_count(),
            [&](int64_t oo, int64_t oa, int64_t ob, int64_t len, int64_t ia, int64_t ib) {
              binary_run(o + oo, pa + oa, pb + ob, len, ia, ib, op);
            });
@@ -334,7 +334,7 @@ Tensor<T> broadcast_to(const Tensor<T>& x, const Shape& shape) {
   const Walk w = make_walk(shape, sx, zero);
   T* o = out.mutable_data();
   const T* px = x.data();
-  walk_all(w, shape.numel(),
+  walk_all(w, shape.element_count(),
            [&](int64_t oo, int64_t ox, int64_t, int64_t len, int64_t ix, int64_t) {
              if (ix == 0)
                std::fill(o + oo, o + oo + len, px[ox]);
@@ -351,8 +351,8 @@ Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape) {
     raise(ErrorKind::kBadShape,
           "sum_into_shape: cannot sum shape " + x.shape().str() + " to " + shape.str());
   Tensor<T> out = Tensor<T>::uninitialised(shape);
-  const int64_t n_out = shape.numel();
-  if (x.numel() == n_out) {  // only size-1 axes differ
+  const int64_t n_out = shape.element_count();
+  if (x.element_count() == n_out) {  // only size-1 axes differ
     std::memcpy(out.mutable_data(), x.data(), sizeof(T) * n_out);
     return out;
   }
@@ -377,7 +377,7 @@ Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape) {
   // disjoint targets and share one accumulator; when it is summed, each slab has its own
   // accumulator and the slabs are added in order. Either way the order of additions
   // depends only on the shapes.
-  const int64_t total = x.numel(), outer = w.extent[0];
+  const int64_t total = x.element_count(), outer = w.extent[0];
   const int64_t per_outer = total / outer;
   int64_t slabs = std::min<int64_t>(outer, std::max<int64_t>(1, total / kParallelGrain));
   const bool outer_summed = w.stride[1][0] == 0 && w.rank > 0;
@@ -405,7 +405,7 @@ Tensor<T> sum_into_shape(const Tensor<T>& x, const Shape& shape) {
 // total does not depend on the thread count).
 template <class T, class Run>
 double add_over_chunks(const Tensor<T>& x, Run run) {
-  const int64_t n = x.numel();
+  const int64_t n = x.element_count();
   const int64_t chunks = std::max<int64_t>(1, (n + kParallelGrain - 1) / kParallelGrain);
   std::vector<double> partial(static_cast<size_t>(chunks), 0.0);
   const T* p = x.data();
@@ -434,7 +434,7 @@ Tensor<T> max_along(const Tensor<T>& x, int axis, Tensor<T>* first_max) {
   T* po = out.mutable_data();
   T* pm = first_max ? first_max->mutable_data() : nullptr;
   const int64_t lanes = l.outer * l.inner;
-  parallel_for(lanes, x.numel() >= kParallelGrain, [&](int64_t q) {
+  parallel_for(lanes, x.element_count() >= kParallelGrain, [&](int64_t q) {
     const int64_t o = q / l.inner, i = q % l.inner;
     const T* lane = px + o * l.extent * l.inner + i;
     // The first NaN wins (and ends the search), else the first of equal maxima.
@@ -455,7 +455,7 @@ Tensor<T> log_sum_exp_along(const Tensor<T>& x, int axis) {
   const T* px = x.data();
   T* po = out.mutable_data();
   const int64_t lanes = l.outer * l.inner;
-  parallel_for(lanes, x.numel() >= kParallelGrain, [&](int64_t q) {
+  parallel_for(lanes, x.element_count() >= kParallelGrain, [&](int64_t q) {
     const int64_t o = q / l.inner, i = q % l.inner;
     const T* lane = px + o * l.extent * l.inner + i;
     T m = -std::numeric_limits<T>::infinity();
@@ -549,7 +549,7 @@ Tensor<T> permute(const Tensor<T>& x, const std::vector<int>& perm) {
   const Walk w = make_walk(out_shape, sx, zero);
   T* o = out.mutable_data();
   const T* px = x.data();
-  walk_all(w, out_shape.numel(),
+  walk_all(w, out_shape.element_count(),
            [&](int64_t oo, int64_t ox, int64_t, int64_t len, int64_t ix, int64_t) {
              for (int64_t i = 0; i < len; ++i) o[oo + i] = px[ox + i * ix];
            });
@@ -614,7 +614,7 @@ template <class T>
 int64_t first_non_finite(const Tensor<T>& x) {
   if (add_over_chunks(x, zero_sum_run<T>) == 0) return -1;  // NaN when any element is not finite
   const T* p = x.data();
-  for (int64_t i = 0; i < x.numel(); ++i)
+  for (int64_t i = 0; i < x.element_count(); ++i)
     if (!std::isfinite(p[i])) return i;
   return -1;
 }

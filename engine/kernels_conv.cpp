@@ -598,7 +598,7 @@ Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
   Tensor<T> gw = Tensor<T>::uninitialised(w_shape);
   T* out = gw.mutable_data();
   // ((p0 + p1) + p2) + … per element, group by group so each pass is one vector loop.
-  parallel_for_chunks(gw.numel(), [&](int64_t begin, int64_t end) {
+  parallel_for_chunks(gw.element_count(), [&](int64_t begin, int64_t end) {
     std::copy(partial[0].data() + begin, partial[0].data() + end, out + begin);
     for (int64_t gi = 1; gi < groups; ++gi) {
       const T* __restrict in = partial[gi].data();

@@ -126,7 +126,7 @@ template <class T>
 Var<T> class_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis);
 // Elementwise −[t·log σ(z) + (1−t)·log(1−σ(z))] = softplus(z) − t·z, stable for any z.
 template <class T>
-Var<T> binary_cross_entropy_from_logits(const Var<T>& logits, const Var<T>& targets);
+Var<T> logistic_cross_entropy(const Var<T>& logits, const Var<T>& targets);
 
 // ---- operators, for readable formulas ----
 template <class T>

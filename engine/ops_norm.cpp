@@ -27,7 +27,7 @@ SPAR_ADJOINT(batch_normalise_adjoint) {
   // again from x so that second derivatives see how they depend on x.
   const Shape& s = x.shape();
   const Shape stat = s.rank() == 2 ? Shape{1, s[1]} : Shape{1, s[1], 1, 1};
-  const double m = static_cast<double>(s.numel() / s[1]);
+  const double m = static_cast<double>(s.element_count() / s[1]);
   const Var<T> mean = scale(sum_into_shape(x, stat), 1 / m);
   const Var<T> centred = subtract(x, mean);
   const Var<T> variance = scale(sum_into_shape(square(centred), stat), 1 / m);

@@ -36,7 +36,7 @@ Var<T> sum(const Var<T>& x, int axis, bool keep_axis) {
 
 template <class T>
 Var<T> mean(const Var<T>& x) {
-  return scale(sum(x), 1.0 / static_cast<double>(x.numel()));
+  return scale(sum(x), 1.0 / static_cast<double>(x.element_count()));
 }
 
 template <class T>
@@ -78,7 +78,7 @@ Var<T> class_cross_entropy(const Var<T>& logits, const Var<T>& targets, int axis
 }
 
 template <class T>
-Var<T> binary_cross_entropy_from_logits(const Var<T>& logits, const Var<T>& targets) {
+Var<T> logistic_cross_entropy(const Var<T>& logits, const Var<T>& targets) {
   return subtract(softplus(logits), multiply(targets, logits));
 }
 
@@ -91,7 +91,7 @@ Var<T> binary_cross_entropy_from_logits(const Var<T>& logits, const Var<T>& targ
   template Var<T> log_sum_exp(const Var<T>&, int, bool);                  \
   template Var<T> softmax(const Var<T>&, int);                            \
   template Var<T> class_cross_entropy(const Var<T>&, const Var<T>&, int); \
-  template Var<T> binary_cross_entropy_from_logits(const Var<T>&, const Var<T>&);
+  template Var<T> logistic_cross_entropy(const Var<T>&, const Var<T>&);
 SPAR_INSTANTIATE(float)
 SPAR_INSTANTIATE(double)
 #undef SPAR_INSTANTIATE

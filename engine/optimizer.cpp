@@ -138,7 +138,7 @@ void Optimizer<T>::replace_each(const std::vector<Tensor<T>*>& params, Update&& 
   fresh.reserve(params.size());
   for (const Tensor<T>* p : params) {
     fresh.push_back(Tensor<T>::uninitialised(p->shape()));
-    sizes.push_back(p->numel());
+    sizes.push_back(p->element_count());
   }
   parallel_for_chunks_of(sizes, [&](size_t i, int64_t begin, int64_t end) {
     update(i, begin, end, fresh[i].mutable_data());
@@ -168,7 +168,7 @@ typename Optimizer<T>::Common Optimizer<T>::read_common(const Archive& archive,
     raise(ErrorKind::kCorruptCheckpoint,
           source + ": record '" + prefix + "/steps' is negative (" + std::to_string(c.steps) + ")");
   const Tensor<double> lr = archive.tensor<double>(prefix + "/learning_rate");
-  if (lr.numel() != 1 || !std::isfinite(lr.data()[0]) || lr.data()[0] < 0)
+  if (lr.element_count() != 1 || !std::isfinite(lr.data()[0]) || lr.data()[0] < 0)
     raise(ErrorKind::kCorruptCheckpoint,
           source + ": record '" + prefix + "/learning_rate' is not one finite value >= 0");
   c.learning_rate = lr.data()[0];

@@ -144,7 +144,7 @@ Tensor<T> Rng::uniform(const Shape& shape, T low, T high) {
           "uniform: needs finite low < high, got low " + show(low) + " and high " + show(high));
   Tensor<T> out = Tensor<T>::uninitialised(shape);
   constexpr int64_t kPerBlock = std::is_same<T, float>::value ? 4 : 2;
-  const int64_t n = out.numel();
+  const int64_t n = out.element_count();
   const int64_t blocks = (n + kPerBlock - 1) / kPerBlock;
   T* data = out.mutable_data();
   const T span = high - low;
@@ -182,7 +182,7 @@ Tensor<T> Rng::normal(const Shape& shape, T mean, T stddev) {
               show(mean) + " and stddev " + show(stddev));
   Tensor<T> out = Tensor<T>::uninitialised(shape);
   constexpr int64_t kPerBlock = std::is_same<T, float>::value ? 4 : 2;
-  const int64_t n = out.numel();
+  const int64_t n = out.element_count();
   const int64_t blocks = (n + kPerBlock - 1) / kPerBlock;
   T* data = out.mutable_data();
 

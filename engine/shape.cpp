@@ -38,7 +38,7 @@ void Shape::push_back(int64_t extent) {
   ++rank_;
 }
 
-int64_t Shape::numel() const {
+int64_t Shape::element_count() const {
   int64_t n = 1;  // cannot overflow: push_back keeps the count within kMaxElements
   for (int i = 0; i < rank_; ++i) n *= dims_[i];
   return n;

@@ -1,8 +1,8 @@
 // Shape: the extents of a tensor, rank 0 (a scalar) to kMaxRank, row-major.
 //
 // Invariant: every extent is >= 0 and the product of the non-zero extents is at most
-// kMaxElements, so numel() and numel() * sizeof(double) never overflow an int64. push_back()
-// and with() enforce it; every reader of outside bytes counts elements with
+// kMaxElements, so element_count() and element_count() * sizeof(double) never overflow an int64.
+// push_back() and with() enforce it; every reader of outside bytes counts elements with
 // checked_element_count() before it builds a Shape or allocates.
 //
 // A small value type: copying is cheap and it never allocates.
@@ -38,7 +38,7 @@ class Shape {
 
   int rank() const { return rank_; }
   int64_t operator[](int axis) const { return dims_[axis]; }
-  int64_t numel() const;
+  int64_t element_count() const;
   const int64_t* begin() const { return dims_.data(); }
   const int64_t* end() const { return dims_.data() + rank_; }
 

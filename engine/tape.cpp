@@ -76,7 +76,7 @@ void Tape<T>::clear() {
 template <class T>
 std::vector<Var<T>> Tape<T>::gradient(const Var<T>& y, const std::vector<Var<T>>& wrt,
                                       GradientOptions options) {
-  if (y.numel() != 1)
+  if (y.element_count() != 1)
     raise(ErrorKind::kBadShape,
           "gradient: the differentiated value has shape " + y.shape().str() + ", not one element");
   return vector_jacobian_product(y, wrt, Var<T>(Tensor<T>::full(y.shape(), T(1))), options);

@@ -57,8 +57,8 @@ class Var {
   bool defined() const { return value_.defined(); }
   const Tensor<T>& value() const { return value_; }
   const Shape& shape() const { return value_.shape(); }
-  int64_t numel() const { return value_.numel(); }
-  T item() const { return value_.item(); }
+  int64_t element_count() const { return value_.element_count(); }
+  T as_scalar() const { return value_.as_scalar(); }
   bool recorded() const { return tape_ != nullptr; }
   Tape<T>* tape() const { return tape_; }
   int32_t id() const { return id_; }

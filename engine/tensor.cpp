@@ -51,7 +51,7 @@ Tensor<T>::~Tensor() {
 template <class T>
 Tensor<T> Tensor<T>::uninitialised(const Shape& shape) {
   Tensor t;
-  t.block_ = detail::acquire_block(static_cast<size_t>(shape.numel()) * sizeof(T));
+  t.block_ = detail::acquire_block(static_cast<size_t>(shape.element_count()) * sizeof(T));
   t.data_ = static_cast<T*>(detail::block_data(t.block_));
   t.shape_ = shape;
   return t;
@@ -65,13 +65,13 @@ Tensor<T> Tensor<T>::zeros(const Shape& shape) {
 template <class T>
 Tensor<T> Tensor<T>::full(const Shape& shape, T value) {
   Tensor t = uninitialised(shape);
-  std::fill(t.data_, t.data_ + shape.numel(), value);
+  std::fill(t.data_, t.data_ + shape.element_count(), value);
   return t;
 }
 
 template <class T>
 Tensor<T> Tensor<T>::from_values(const Shape& shape, const std::vector<T>& values) {
-  if (static_cast<int64_t>(values.size()) != shape.numel())
+  if (static_cast<int64_t>(values.size()) != shape.element_count())
     raise(ErrorKind::kBadShape,
           "tensor: " + std::to_string(values.size()) + " values do not fill shape " + shape.str());
   Tensor t = uninitialised(shape);
@@ -80,8 +80,8 @@ Tensor<T> Tensor<T>::from_values(const Shape& shape, const std::vector<T>& value
 }
 
 template <class T>
-T Tensor<T>::item() const {
-  if (!defined() || numel() != 1)
+T Tensor<T>::as_scalar() const {
+  if (!defined() || element_count() != 1)
     raise(ErrorKind::kBadShape, "item: tensor of shape " + shape_.str() + " is not one element");
   return data_[0];
 }
@@ -106,13 +106,13 @@ template <class T>
 Tensor<T> Tensor<T>::clone() const {
   if (!defined()) return Tensor();
   Tensor t = uninitialised(shape_);
-  std::memcpy(t.data_, data_, static_cast<size_t>(numel()) * sizeof(T));
+  std::memcpy(t.data_, data_, static_cast<size_t>(element_count()) * sizeof(T));
   return t;
 }
 
 template <class T>
 Tensor<T> Tensor<T>::reshape(const Shape& shape) const {
-  if (shape.numel() != numel())
+  if (shape.element_count() != element_count())
     raise(ErrorKind::kBadShape,
           "reshape: cannot view shape " + shape_.str() + " as " + shape.str());
   Tensor t = *this;
@@ -126,7 +126,7 @@ Tensor<T> Tensor<T>::leading_slice(int64_t begin, int64_t end) const {
     raise(ErrorKind::kBadShape, "leading_slice: rows " + std::to_string(begin) + ".." +
                                     std::to_string(end) + " of shape " + shape_.str());
   Tensor t = *this;
-  int64_t row = shape_[0] == 0 ? 0 : numel() / shape_[0];
+  int64_t row = shape_[0] == 0 ? 0 : element_count() / shape_[0];
   t.data_ = data_ + begin * row;
   t.shape_ = shape_.with(0, end - begin);
   return t;
@@ -137,7 +137,7 @@ template <class U>
 Tensor<U> Tensor<T>::cast() const {
   Tensor<U> t = Tensor<U>::uninitialised(shape_);
   U* out = t.mutable_data();
-  for (int64_t i = 0; i < numel(); ++i) out[i] = static_cast<U>(data_[i]);
+  for (int64_t i = 0; i < element_count(); ++i) out[i] = static_cast<U>(data_[i]);
   return t;
 }
 
@@ -149,7 +149,7 @@ long Tensor<T>::use_count() const {
 template <class T>
 bool equal(const Tensor<T>& a, const Tensor<T>& b) {
   if (!a.defined() || !b.defined() || a.shape() != b.shape()) return false;
-  return std::equal(a.data(), a.data() + a.numel(), b.data());
+  return std::equal(a.data(), a.data() + a.element_count(), b.data());
 }
 
 template class Tensor<float>;

@@ -41,23 +41,23 @@ class Tensor {
   static Tensor zeros(const Shape& shape);
   static Tensor full(const Shape& shape, T value);
   static Tensor scalar(T value) { return full(Shape{}, value); }
-  // Raises kBadShape when values.size() != shape.numel().
+  // Raises kBadShape when values.size() != shape.element_count().
   static Tensor from_values(const Shape& shape, const std::vector<T>& values);
 
   bool defined() const { return block_ != nullptr; }
   const Shape& shape() const { return shape_; }
   int rank() const { return shape_.rank(); }
   int64_t dim(int axis) const { return shape_[axis]; }
-  int64_t numel() const { return shape_.numel(); }
+  int64_t element_count() const { return shape_.element_count(); }
 
   const T* data() const { return data_; }
   T* mutable_data() { return data_; }  // see the class comment for who may write
-  T item() const;                      // the one element; raises kBadShape if numel() != 1
+  T as_scalar() const;                 // the one element; raises kBadShape if element_count() != 1
   T at(std::initializer_list<int64_t> index) const;  // bounds-checked read, for tests
-  std::vector<T> to_vector() const { return std::vector<T>(data_, data_ + numel()); }
+  std::vector<T> to_vector() const { return std::vector<T>(data_, data_ + element_count()); }
 
   Tensor clone() const;  // an independent copy
-  // The same storage seen with another shape of equal numel (raises kBadShape otherwise).
+  // The same storage seen with another shape of equal element_count (raises kBadShape otherwise).
   Tensor reshape(const Shape& shape) const;
   // Entries begin..end-1 along axis 0, sharing storage (contiguous in row-major order).
   Tensor leading_slice(int64_t begin, int64_t end) const;

@@ -49,7 +49,7 @@ Var<T> Dropout<T>::run(const Var<T>& x, Context<T>& ctx) {
   Tensor<T> mask = ctx.rng("dropout").template uniform<T>(x.shape());
   T* m = mask.mutable_data();
   const T keep = static_cast<T>(1 / (1 - p_)), p = static_cast<T>(p_);
-  for (int64_t i = 0; i < mask.numel(); ++i) m[i] = m[i] < p ? T(0) : keep;
+  for (int64_t i = 0; i < mask.element_count(); ++i) m[i] = m[i] < p ? T(0) : keep;
   return multiply(x, Var<T>(mask));
 }
 
@@ -63,7 +63,7 @@ Var<T> PerSampleReshape<T>::run(const Var<T>& x, Context<T>&) {
   Shape s;
   s.push_back(x.shape()[0]);
   for (int64_t d : per_sample_) s.push_back(d);
-  if (s.numel() != x.numel())
+  if (s.element_count() != x.element_count())
     raise(ErrorKind::kBadShape,
           describe() + ": input of shape " + x.shape().str() + " does not fit " + s.str());
   return reshape(x, s);

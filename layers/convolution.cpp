@@ -33,9 +33,10 @@ template <class T>
 Convolution<T>::Convolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
-  params_ = WeightAndBias<T>(initial_weight<T>({out, in, options.kernel_h, options.kernel_w},
-                                               in * area, out * area, options.init, rng),
-                             options.bias ? out : 0, options.spectral_norm, out, in * area, rng);
+  params_ =
+      WeightAndBias<T>(initial_weight<T>({out, in, options.kernel_h, options.kernel_w}, in * area,
+                                         out * area, options.init, rng),
+                       options.bias ? out : 0, options.spectral_normalisation, out, in * area, rng);
 }
 
 template <class T>
@@ -59,7 +60,8 @@ void Convolution<T>::collect_state(const std::string& prefix, std::vector<NamedT
 template <class T>
 std::string Convolution<T>::describe() const {
   return "convolution " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
-         geometry_text(options_) + (options_.spectral_norm ? ", spectral normalisation" : "");
+         geometry_text(options_) +
+         (options_.spectral_normalisation ? ", spectral normalisation" : "");
 }
 
 template <class T>
@@ -67,9 +69,10 @@ TransposedConvolution<T>::TransposedConvolution(int64_t in, int64_t out, const C
                                                 Rng& rng)
     : in_(in), out_(out), options_(options) {
   const int64_t area = options.kernel_h * options.kernel_w;
-  params_ = WeightAndBias<T>(initial_weight<T>({in, out, options.kernel_h, options.kernel_w},
-                                               in * area, out * area, options.init, rng),
-                             options.bias ? out : 0, options.spectral_norm, in, out * area, rng);
+  params_ =
+      WeightAndBias<T>(initial_weight<T>({in, out, options.kernel_h, options.kernel_w}, in * area,
+                                         out * area, options.init, rng),
+                       options.bias ? out : 0, options.spectral_normalisation, in, out * area, rng);
 }
 
 template <class T>
@@ -101,7 +104,8 @@ void TransposedConvolution<T>::collect_state(const std::string& prefix,
 template <class T>
 std::string TransposedConvolution<T>::describe() const {
   return "transposed convolution " + std::to_string(in_) + "→" + std::to_string(out_) + ", " +
-         geometry_text(options_) + (options_.spectral_norm ? ", spectral normalisation" : "");
+         geometry_text(options_) +
+         (options_.spectral_normalisation ? ", spectral normalisation" : "");
 }
 
 template <class T>

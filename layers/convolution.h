@@ -5,7 +5,7 @@
 
 #include "layers/init.h"
 #include "layers/layer.h"
-#include "layers/spectral_norm.h"
+#include "layers/spectral_normalisation.h"
 
 namespace spar {
 
@@ -15,8 +15,8 @@ struct ConvOptions {
   int64_t output_pad_h = 0, output_pad_w = 0;  // transposed convolution only: extra rows and
                                                // columns at the end, 0 <= a < stride
   bool bias = true;                            // a learned offset per output channel. Default on.
-  Init init = Init::kDcganNormal;  // the weight's initial distribution; the bias starts at 0
-  bool spectral_norm = false;      // divide the weight by its largest singular value
+  Init init = Init::kDcganNormal;       // the weight's initial distribution; the bias starts at 0
+  bool spectral_normalisation = false;  // divide the weight by its largest singular value
 };
 
 // [N, in, H, W] → [N, out, OH, OW]; weight [out, in, KH, KW], bias [out].

@@ -13,7 +13,7 @@ Dense<T>::Dense(int64_t in, int64_t out, const DenseOptions& options, Rng& rng)
     raise(ErrorKind::kBadArgument,
           "dense: sizes " + std::to_string(in) + "→" + std::to_string(out) + " must be positive");
   params_ = WeightAndBias<T>(initial_weight<T>({in, out}, in, out, options.init, rng),
-                             options.bias ? out : 0, options.spectral_norm, in, out, rng);
+                             options.bias ? out : 0, options.spectral_normalisation, in, out, rng);
 }
 
 template <class T>
@@ -40,7 +40,7 @@ template <class T>
 std::string Dense<T>::describe() const {
   return "dense " + std::to_string(in_) + "→" + std::to_string(out_) +
          (options_.bias ? "" : ", no bias") +
-         (options_.spectral_norm ? ", spectral normalisation" : "");
+         (options_.spectral_normalisation ? ", spectral normalisation" : "");
 }
 
 template <class T>

@@ -4,17 +4,18 @@
 
 #include "layers/init.h"
 #include "layers/layer.h"
-#include "layers/spectral_norm.h"
+#include "layers/spectral_normalisation.h"
 
 namespace spar {
 
 struct DenseOptions {
   bool bias = true;                // a learned offset per output. Default on.
   Init init = Init::kDcganNormal;  // the weight's initial distribution; the bias starts at 0
-  bool spectral_norm = false;      // divide the weight by its largest singular value. Default off.
+  bool spectral_normalisation =
+      false;  // divide the weight by its largest singular value. Default off.
 };
 
-// y = x·W + b for x: [N, in], W: [in, out], b: [out]. Parameters "weight" and "bias".
+// y = x·W + b for x: [N, in], W: [in, out], b: [out]. Parameters "matrix" (W) and "offset" (b).
 template <class T>
 class Dense final : public Layer<T> {
  public:

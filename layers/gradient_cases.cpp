@@ -66,7 +66,7 @@ std::vector<GradientCase> layer_gradient_cases() {
   dense.init = Init::kGlorotUniform;
   c.check("dense 3→4", make<Dense<double>>(3, 4, dense, r), c.any({5, 3}), true);
   DenseOptions dense_sn = dense;
-  dense_sn.spectral_norm = true;
+  dense_sn.spectral_normalisation = true;
   c.check("dense 3→4, spectral normalisation", make<Dense<double>>(3, 4, dense_sn, r),
           c.any({5, 3}), false);
 
@@ -78,10 +78,10 @@ std::vector<GradientCase> layer_gradient_cases() {
   ConvOptions strided = conv;
   strided.kernel_h = strided.kernel_w = 4;
   strided.geometry = {2, 2, 1, 1};
-  strided.spectral_norm = true;
+  strided.spectral_normalisation = true;
   c.check("convolution 3→2, 4×4, stride 2, spectral normalisation",
           make<Convolution<double>>(3, 2, strided, r), c.any({2, 3, 6, 6}), false);
-  strided.spectral_norm = false;
+  strided.spectral_normalisation = false;
   ConvOptions up = conv;
   up.kernel_h = up.kernel_w = 4;
   up.geometry = {2, 2, 1, 1};
@@ -116,7 +116,7 @@ std::vector<GradientCase> layer_gradient_cases() {
   net->emplace<Nonlinearity<double>>("act", NonlinearityKind::kLeakyRelu, 0.2);
   net->emplace<PerSampleReshape<double>>("flat", Shape{2 * 3 * 3});
   net->emplace<Dense<double>>("out", 18, 1, dense, r);
-  c.check("sequential critic", net, c.any({4, 1, 6, 6}), true);
+  c.check("layer stack critic", net, c.any({4, 1, 6, 6}), true);
   return c.take();
 }
 

@@ -1,11 +1,41 @@
 #include "layers/layer.h"
 
+#include <algorithm>
+
 #include "engine/error.h"
 
 namespace spar {
 
 std::string join_name(const std::string& prefix, const std::string& name) {
-  return prefix.empty() ? name : prefix + "." + name;
+  return prefix.empty() ? name : prefix + kNameSeparator + name;
+}
+
+const char* weight_role(const Shape& weight) {
+  return weight.rank() == 2 ? "matrix" : "filters";
+}
+
+std::string name_in_format_1(const std::string& old_name, const Shape& shape) {
+  // Format 1's roles and theirs now; "weight" depends on the layer (weight_role).
+  static const std::pair<const char*, const char*> kRoles[] = {
+      {"bias", "offset"},
+      {"scale", "scale"},
+      {"shift", "shift"},
+      {"running_mean", "tracked_mean"},
+      {"running_variance", "tracked_variance"},
+      {"spectral_u", "singular_left"},
+      {"spectral_v", "singular_right"},
+      {"table", "table"},
+  };
+  const size_t dot = old_name.rfind('.');
+  if (dot == std::string::npos || old_name.find(kNameSeparator) != std::string::npos)
+    return old_name;
+  const std::string role = old_name.substr(dot + 1);
+  std::string path = old_name.substr(0, dot);
+  std::replace(path.begin(), path.end(), '.', kNameSeparator);
+  if (role == "weight") return join_name(path, weight_role(shape));
+  for (const auto& [before, now] : kRoles)
+    if (role == before) return join_name(path, now);
+  return old_name;
 }
 
 template <class T>

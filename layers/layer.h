@@ -3,7 +3,7 @@
 //
 // A layer owns its parameters (trained) and state tensors (saved but not trained: running
 // statistics, power-iteration vectors) as plain tensors, and reports them with stable,
-// hierarchical names ("critic.block2.conv.weight") that checkpoints use. It does not own a
+// hierarchical names ("critic/down2/filters") that checkpoints use. It does not own a
 // tape: each forward pass receives a Context that says whether this is a training step and
 // where to record. Training versus evaluation is therefore a property of the step (the
 // Context), not hidden state in the layers, so one model can serve a training step and a
@@ -83,8 +83,23 @@ class Layer {
   virtual std::string describe() const = 0;
 };
 
-// "<prefix>.<name>", or just the name when the prefix is empty.
+// Names of model tensors (docs/file-formats.md, "Model tensors in an archive"): the path of
+// layer names from the network down, then the tensor's role, joined by '/', as
+// "critic/down2/filters" or "generator/norm0/tracked_mean". Roles: "matrix" (a dense layer's
+// weight), "filters" (a convolution's), "offset" (a bias), "scale" and "shift" (batch
+// normalisation's), "tracked_mean" and "tracked_variance" (its statistics for sampling),
+// "singular_left" and "singular_right" (spectral normalisation's vectors u and v), "table"
+// (a class embedding). These names reach saved files: rename one only with a new run format
+// and a mapping from the old names (name_in_format_1).
+constexpr char kNameSeparator = '/';
+// "<prefix>/<name>", or just the name when the prefix is empty.
 std::string join_name(const std::string& prefix, const std::string& name);
+// The role of a weight of this shape: "matrix" for rank 2 (dense), "filters" otherwise.
+const char* weight_role(const Shape& weight);
+// Run format 1 named model tensors by dotted paths with other roles ("critic.down2.weight",
+// "generator.norm0.running_mean"); this is the name such a tensor of `shape` has now. Names
+// that are not format-1 model tensors come back unchanged.
+std::string name_in_format_1(const std::string& old_name, const Shape& shape);
 
 // The gradients of the one-element `loss` with respect to each parameter, in order, as plain
 // tensors (zeros for a parameter the step did not use).

@@ -6,12 +6,14 @@ namespace spar {
 
 template <class T>
 Layer<T>& LayerStack<T>::add(const std::string& name, std::unique_ptr<Layer<T>> layer) {
-  if (name.empty() || name.find('.') != std::string::npos)
-    raise(ErrorKind::kBadArgument,
-          "sequential: layer name '" + name + "' must be non-empty and free of dots");
+  // Neither today's separator nor run format 1's may be part of a name (layer.h).
+  if (name.empty() || name.find_first_of(std::string(1, kNameSeparator) + ".") != std::string::npos)
+    raise(ErrorKind::kBadArgument, "layer stack: layer name '" + name +
+                                       "' must be non-empty and hold no '" + kNameSeparator +
+                                       "' or '.'");
   for (const auto& entry : layers_)
     if (entry.first == name)
-      raise(ErrorKind::kBadArgument, "sequential: a layer named '" + name + "' already exists");
+      raise(ErrorKind::kBadArgument, "layer stack: a layer named '" + name + "' already exists");
   layers_.emplace_back(name, std::move(layer));
   return *layers_.back().second;
 }

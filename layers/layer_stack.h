@@ -2,7 +2,7 @@
 // state tensors, and saves and loads them through an Archive.
 //
 // Names are hierarchical: a layer added as "conv1" to a LayerStack reported under prefix
-// "critic" owns "critic.conv1.weight". A LayerStack is itself a Layer, so models nest.
+// "critic" owns "critic/conv1/filters" (layer.h). A LayerStack is itself a Layer, so models nest.
 // Training versus evaluation is chosen per step by the Context (layer.h).
 // Thread safety: as for layers (one thread at a time).
 #pragma once
@@ -33,7 +33,7 @@ class LayerStack final : public Layer<T> {
   std::vector<NamedTensor<T>> all_state(const std::string& prefix = "");
   size_t size() const { return layers_.size(); }
 
-  // Writes every parameter and state tensor as a tensor record named "<prefix>.<name>".
+  // Writes every parameter and state tensor as a tensor record named "<prefix>/<name>".
   void save(Archive& archive, const std::string& prefix = "");
   // Reads them back. Raises kCorruptCheckpoint naming the tensor when one is missing or has
   // another shape (a checkpoint from another architecture); nothing is changed in that case.

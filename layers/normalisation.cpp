@@ -26,7 +26,7 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
                                     std::to_string(channels_) + ", H, W]");
   const Shape stat = s.rank() == 2 ? Shape{1, channels_} : Shape{1, channels_, 1, 1};
   if (ctx.training() || ctx.statistics_pass()) {
-    const int64_t m = s.numel() / channels_;  // values per channel
+    const int64_t m = s.element_count() / channels_;  // values per channel
     if (m < 2)
       raise(ErrorKind::kBadShape,
             describe() + ": a training batch needs two or more values per channel, got " + s.str());
@@ -65,8 +65,8 @@ void BatchNormalisation<T>::collect_parameters(const std::string& prefix,
 template <class T>
 void BatchNormalisation<T>::collect_state(const std::string& prefix,
                                           std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "running_mean"), &running_mean_});
-  out.push_back({join_name(prefix, "running_variance"), &running_variance_});
+  out.push_back({join_name(prefix, "tracked_mean"), &running_mean_});
+  out.push_back({join_name(prefix, "tracked_variance"), &running_variance_});
 }
 
 template <class T>

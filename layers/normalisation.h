@@ -20,7 +20,7 @@ struct BatchNormalisationOptions {
 // the running unbiased variance m/(m−1)·σ²_B (Algorithm 2); evaluation steps normalise with
 // those. A statistics pass (Context::set_statistics_pass) normalises with the batch's
 // statistics and replaces the running ones with them (r = 1). Accepts [N, C] and [N, C, H, W].
-// Parameters "scale", "shift"; state "running_mean", "running_variance".
+// Parameters "scale", "shift"; state "tracked_mean", "tracked_variance" (the running statistics).
 template <class T>
 class BatchNormalisation final : public Layer<T> {
  public:

@@ -48,7 +48,7 @@ GanPair make_mlp_pair(const MlpPairOptions& o, Rng& rng) {
   GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent, Shape{o.data}, o.classes};
   DenseOptions plain;
   DenseOptions critic_dense = plain;
-  critic_dense.spectral_norm = o.spectral_norm;
+  critic_dense.spectral_normalisation = o.spectral_normalisation;
   int64_t in = o.latent + o.classes;
   for (int i = 1; i <= o.depth; ++i) {
     pair.generator->emplace<Dense<float>>(numbered("dense", i), in, o.width, plain, rng);
@@ -112,22 +112,23 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
 
   S& d = *pair.critic;
   ConvOptions down = up;
-  down.spectral_norm = o.spectral_norm;
+  down.spectral_normalisation = o.spectral_normalisation;
   c = o.channels + o.classes;
   int64_t size = o.image_size;
   for (int i = 1; i <= doublings; ++i) {
     const int64_t next = o.width << (i - 1);
     ConvOptions layer = down;
-    layer.bias = i == 1 || o.spectral_norm;  // no bias before batch normalisation
+    layer.bias = i == 1 || o.spectral_normalisation;  // no bias before batch normalisation
     d.emplace<Convolution<float>>(numbered("down", i), c, next, layer, rng);
-    if (i > 1 && !o.spectral_norm) d.emplace<BatchNormalisation<float>>(numbered("norm", i), next);
+    if (i > 1 && !o.spectral_normalisation)
+      d.emplace<BatchNormalisation<float>>(numbered("norm", i), next);
     d.emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kLeakyRelu, 0.2);
     c = next;
     size /= 2;
   }
   d.emplace<PerSampleReshape<float>>("flat", Shape{c * size * size});
   DenseOptions score;
-  score.spectral_norm = o.spectral_norm;
+  score.spectral_normalisation = o.spectral_normalisation;
   d.emplace<Dense<float>>("score", c * size * size, 1, score, rng);
   return pair;
 }

@@ -39,22 +39,22 @@ Var<float> run_critic(GanPair& pair, const Var<float>& x, const std::vector<int6
                       Context<float>& ctx);
 
 struct MlpPairOptions {
-  int64_t latent = 8;          // latent vector size
-  int64_t data = 2;            // features per sample
-  int64_t width = 128;         // units per hidden layer
-  int depth = 3;               // hidden layers in each network
-  bool spectral_norm = false;  // spectral normalisation in the critic's dense layers
-  int64_t classes = 0;         // > 0: class-conditional
+  int64_t latent = 8;                   // latent vector size
+  int64_t data = 2;                     // features per sample
+  int64_t width = 128;                  // units per hidden layer
+  int depth = 3;                        // hidden layers in each network
+  bool spectral_normalisation = false;  // spectral normalisation in the critic's dense layers
+  int64_t classes = 0;                  // > 0: class-conditional
 };
 GanPair make_mlp_pair(const MlpPairOptions& options, Rng& rng);
 
 struct DcganPairOptions {
-  int64_t image_size = 32;     // 28, 32 or 64
-  int64_t channels = 3;        // 1 (grayscale) or 3 (RGB)
-  int64_t latent = 100;        // latent vector size
-  int64_t width = 64;          // channels of the critic's first convolution; doubled per step
-  bool spectral_norm = false;  // critic: spectral instead of batch normalisation
-  int64_t classes = 0;         // > 0: class-conditional
+  int64_t image_size = 32;  // 28, 32 or 64
+  int64_t channels = 3;     // 1 (grayscale) or 3 (RGB)
+  int64_t latent = 100;     // latent vector size
+  int64_t width = 64;       // channels of the critic's first convolution; doubled per step
+  bool spectral_normalisation = false;  // critic: spectral instead of batch normalisation
+  int64_t classes = 0;                  // > 0: class-conditional
 };
 // Raises kBadRecipe for an image size other than 28, 32 or 64, or channels other than 1 or 3.
 GanPair make_dcgan_pair(const DcganPairOptions& options, Rng& rng);

@@ -35,7 +35,7 @@ void DatasetSource::shuffle_for_epoch() {
 
 Batch DatasetSource::next_batch(int64_t n) {
   const Shape one = data_.sample_shape();
-  const int64_t width = one.numel();
+  const int64_t width = one.element_count();
   std::vector<int64_t> dims{n};
   dims.insert(dims.end(), one.begin(), one.end());
   Batch batch{Tensor<float>::uninitialised(Shape(dims.begin(), dims.end())), {}};

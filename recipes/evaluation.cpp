@@ -12,8 +12,8 @@ NearestMatch nearest_training_samples(const Dataset& data, const Tensor<float>& 
   if (data.labels.empty())
     raise(ErrorKind::kBadArgument, data.origin + ": has no labels to compare samples with");
   const int64_t n = samples.shape()[0], m = data.size();
-  const int64_t width = data.sample_shape().numel();
-  if (samples.numel() != n * width)
+  const int64_t width = data.sample_shape().element_count();
+  if (samples.element_count() != n * width)
     raise(ErrorKind::kBadShape, "nearest training samples: samples of shape " +
                                     samples.shape().str() + " against data of sample shape " +
                                     data.sample_shape().str());

@@ -7,14 +7,14 @@ namespace {
 
 template <class T>
 Var<T> flat(const Var<T>& scores) {
-  return reshape(scores, {scores.numel()});
+  return reshape(scores, {scores.element_count()});
 }
 
 // Per-sample squared norm of g over all axes but the first: [N, ...] → [N].
 template <class T>
 Var<T> squared_norms(const Var<T>& g) {
   const int64_t n = g.shape()[0];
-  return sum(square(reshape(g, {n, g.numel() / n})), 1);
+  return sum(square(reshape(g, {n, g.element_count() / n})), 1);
 }
 
 }  // namespace

@@ -116,7 +116,7 @@ const std::vector<Key>& keys() {
                  "convolution, doubled at each halving (the generator mirrors it)",
                  nullptr, 1, 4096),
         SPAR_KEY("model.depth", depth, "mlp: hidden layers in each network", nullptr, 1, 32),
-        SPAR_KEY("model.spectral_norm", spectral_norm,
+        SPAR_KEY("model.spectral_normalisation", spectral_normalisation,
                  "critic: spectral normalisation of every weight (Miyato et al. 2018); for "
                  "dcgan it replaces the critic's batch normalisation"),
         SPAR_KEY("model.conditional", conditional,
@@ -269,6 +269,26 @@ const Key* find_key(const std::string& name) {
   for (const Key& k : keys())
     if (name == k.name) return &k;
   return nullptr;
+}
+
+// Keys renamed since they were first written, as (old name, new name). A recipe may still use
+// the old name, read as the new one with a note; recipes spar writes use the new one.
+const std::pair<const char*, const char*> kRenamedKeys[] = {
+    {"model.spectral_norm", "model.spectral_normalisation"},
+};
+
+// The key `name` stands for, following a rename (with a note into `notes`, when given);
+// nullptr for an unknown name.
+const Key* find_current_key(const std::string& name, const std::string& origin,
+                            std::vector<std::string>* notes) {
+  for (const auto& [old_name, new_name] : kRenamedKeys)
+    if (name == old_name) {
+      if (notes)
+        notes->push_back(origin + ": " + old_name + " is now called " + new_name +
+                         "; the old name is still read, for now");
+      return find_key(new_name);
+    }
+  return find_key(name);
 }
 
 // "; did you mean 'training.steps'?" for a near miss, else a list of the section's keys.
@@ -425,9 +445,11 @@ std::vector<RecipeKeyInfo> recipe_keys() {
   return out;
 }
 
-Recipe parse_recipe(const std::string& text, const std::string& origin) {
+Recipe parse_recipe(const std::string& text, const std::string& origin,
+                    std::vector<std::string>* notes) {
   const toml::table root = parse_toml(text, origin);
   Recipe recipe;
+  std::vector<const Key*> given;  // to refuse a key given under both its names
   for (const auto& [section, content] : root) {
     const std::string section_name(section.str());
     const toml::table* table = content.as_table();
@@ -437,17 +459,21 @@ Recipe parse_recipe(const std::string& text, const std::string& origin) {
                   suggestion(section_name));
     for (const auto& [leaf, node] : *table) {
       const std::string name = section_name + "." + std::string(leaf.str());
-      const Key* key = find_key(name);
+      const Key* key = find_current_key(name, origin, notes);
       if (!key) bad_key(origin, &node, name, "unknown key" + suggestion(name));
+      if (std::find(given.begin(), given.end(), key) != given.end())
+        bad_key(origin, &node, name,
+                std::string("given twice, as ") + key->name + " and under its old name; keep one");
+      given.push_back(key);
       assign(*key, node, recipe, origin);
     }
   }
   return recipe;
 }
 
-Recipe load_recipe(const std::string& name_or_path) {
+Recipe load_recipe(const std::string& name_or_path, std::vector<std::string>* notes) {
   for (const auto& [name, text] : detail::embedded_presets())
-    if (name == name_or_path) return parse_recipe(text, "preset " + name);
+    if (name == name_or_path) return parse_recipe(text, "preset " + name, notes);
   std::ifstream in(name_or_path, std::ios::binary);
   if (!in) {
     std::string names;
@@ -457,7 +483,7 @@ Recipe load_recipe(const std::string& name_or_path) {
   }
   std::stringstream text;
   text << in.rdbuf();
-  Recipe recipe = parse_recipe(text.str(), name_or_path);
+  Recipe recipe = parse_recipe(text.str(), name_or_path, notes);
   // Data paths in a file are relative to the file's folder, so recipes travel with their data;
   // they are stored absolute, so a run can be resumed or judged from any directory.
   const std::filesystem::path folder = std::filesystem::path(name_or_path).parent_path();
@@ -467,15 +493,15 @@ Recipe load_recipe(const std::string& name_or_path) {
   return recipe;
 }
 
-std::string apply_setting(Recipe& recipe, const std::string& assignment,
-                          const std::string& origin) {
+std::string apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin,
+                          std::vector<std::string>* notes) {
   const size_t eq = assignment.find('=');
   if (eq == std::string::npos || eq == 0)
     raise(ErrorKind::kBadRecipe, origin + ": " + toml_string(assignment) + " is not key=value");
   std::string name = assignment.substr(0, eq);
   name.erase(name.find_last_not_of(' ') + 1);
   const std::string value = assignment.substr(eq + 1);
-  const Key* key = find_key(name);
+  const Key* key = find_current_key(name, origin, notes);
   if (!key) bad_key(origin, nullptr, name, "unknown key" + suggestion(name));
   toml::table parsed;
   try {
@@ -535,10 +561,15 @@ std::string recipe_keys_markdown() {
         choices += *c == '|' ? std::string(", ") : std::string(1, *c);
       about += ". One of: " + choices;
     }
-    std::string escaped_default = k.default_value;
-    out += "| `" + leaf_of(k.name) + "` | " + k.type + " | `" + escaped_default + "` | " + about +
+    out += "| `" + leaf_of(k.name) + "` | " + k.type + " | `" + k.default_value + "` | " + about +
            " |\n";
   }
+  out +=
+      "\n## Renamed keys\n\nA recipe may still use a key's old name: it is read as the new "
+      "one, with a one-line note. Recipes spar writes use the new names.\n\n"
+      "| old name | new name |\n|---|---|\n";
+  for (const auto& [old_name, new_name] : kRenamedKeys)
+    out += "| `" + std::string(old_name) + "` | `" + new_name + "` |\n";
   return out;
 }
 

@@ -40,7 +40,7 @@ struct Recipe {
   int64_t latent = 100;
   int64_t width = 64;  // mlp: units per hidden layer; dcgan: channels of the first convolution
   int64_t depth = 3;   // mlp: hidden layers per network
-  bool spectral_norm = false;
+  bool spectral_normalisation = false;
   bool conditional = false;
 
   // [objective]
@@ -78,15 +78,19 @@ struct RecipeKeyInfo {
 };
 std::vector<RecipeKeyInfo> recipe_keys();
 
-// Parses TOML text; `origin` names it in errors (a path, or "preset swatches").
-Recipe parse_recipe(const std::string& text, const std::string& origin);
+// Parses TOML text; `origin` names it in errors (a path, or "preset swatches"). A key under
+// its old name (renamed since, as model.spectral_norm) is read as the new one, with a
+// one-line note appended to `notes` when it is given; the same key under both names is an error.
+Recipe parse_recipe(const std::string& text, const std::string& origin,
+                    std::vector<std::string>* notes = nullptr);
 // A preset name (see preset_names) or the path of a TOML file. Raises kBadRecipe for an
 // unknown name that is not a file either, naming the presets.
-Recipe load_recipe(const std::string& name_or_path);
+Recipe load_recipe(const std::string& name_or_path, std::vector<std::string>* notes = nullptr);
 // Applies "key=value" with value in TOML syntax; a bare word is taken as a string, so
 // `--set objective.name=hinge` works unquoted. Raises kBadRecipe naming `origin` and the key.
-// Returns the key's name.
-std::string apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin);
+// Returns the key's (current) name.
+std::string apply_setting(Recipe& recipe, const std::string& assignment, const std::string& origin,
+                          std::vector<std::string>* notes = nullptr);
 // Every key with its value, by section, with each key's meaning as a comment; parse_recipe
 // of the result gives `recipe` back.
 std::string to_toml(const Recipe& recipe);

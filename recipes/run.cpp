@@ -249,7 +249,7 @@ int64_t network_budget(const Archive& a) {
   int64_t bytes = 0;
   for (const std::string& name : a.names())
     if (a.kind(name) == RecordKind::kFloat32Tensor)
-      bytes += a.tensor_shape(name).numel() * static_cast<int64_t>(sizeof(float));
+      bytes += a.tensor_shape(name).element_count() * static_cast<int64_t>(sizeof(float));
   return 4 * bytes + (int64_t{64} << 20);
 }
 
@@ -344,7 +344,7 @@ bool has_pictures(const Recipe& r, const Shape& sample_shape) {
 
 void write_samples_table(const Tensor<float>& samples, const std::string& path) {
   std::string text;
-  const int64_t n = samples.shape()[0], width = samples.numel() / std::max<int64_t>(1, n);
+  const int64_t n = samples.shape()[0], width = samples.element_count() / std::max<int64_t>(1, n);
   char buf[32];
   for (int64_t i = 0; i < n; ++i)
     for (int64_t j = 0; j < width; ++j) {
@@ -428,7 +428,7 @@ GanPair make_gan_pair(const Recipe& r, const Shape& shape, int64_t classes) {
     o.data = shape[0];
     o.width = r.width;
     o.depth = static_cast<int>(r.depth);
-    o.spectral_norm = r.spectral_norm;
+    o.spectral_normalisation = r.spectral_normalisation;
     o.classes = conditioned;
     return make_mlp_pair(o, rng);
   }
@@ -440,7 +440,7 @@ GanPair make_gan_pair(const Recipe& r, const Shape& shape, int64_t classes) {
   o.channels = shape[0];
   o.latent = r.latent;
   o.width = r.width;
-  o.spectral_norm = r.spectral_norm;
+  o.spectral_normalisation = r.spectral_normalisation;
   o.classes = conditioned;
   try {
     return make_dcgan_pair(o, rng);
@@ -519,7 +519,8 @@ Run Run::reopen(const std::string& folder, const std::vector<std::string>& setti
     raise(ErrorKind::kBadArgument, folder + ": holds no " + kStateFile + " (not a run folder?)");
   std::shared_ptr<void> lock = lock_folder(folder);
   remove_run_files(folder, false);  // stale temporaries of an interrupted write
-  const Archive state = Archive::read_file(state_path);
+  Archive state = Archive::read_file(state_path);
+  upgrade_run_records(state);
   const Recipe saved = parse_recipe(state.text("recipe"), state_path + " (its recipe)");
   const std::string id = state.contains("run.id") ? state.text("run.id") : "";
 
@@ -670,8 +671,8 @@ void Run::write_curves() {
   const bool logistic = recipe_.objective == "minimax" || recipe_.objective == "non-saturating";
   const std::vector<PlotPanel> panels = {
       {"losses", "loss", {critic, generator}},
-      {logistic ? "critic outputs: mean D(x) and D(G(z)), the probability of \"real\""
-                : "critic outputs: mean score",
+      {logistic ? "critic scores: the mean probability of \"real\" it gives each kind"
+                : "critic scores: the mean score it gives each kind",
        logistic ? "probability" : "score",
        {real, fake}},
   };
@@ -755,11 +756,12 @@ SavedGenerator load_generator(const std::string& folder_or_file) {
   if (!fs::exists(path))
     raise(ErrorKind::kBadArgument,
           path + ": does not exist (give a run folder or its " + kGeneratorFile + ")");
-  const Archive a = Archive::read_file(path);
+  Archive a = Archive::read_file(path);
   if (!a.contains("kind") || a.kind("kind") != RecordKind::kText ||
       a.text("kind") != "spar generator")
     raise(ErrorKind::kCorruptCheckpoint,
           path + ": is not a saved generator (a run folder's " + kGeneratorFile + ")");
+  upgrade_run_records(a);
   SavedGenerator g;
   g.recipe = parse_recipe(a.text("recipe"), path + " (its recipe)");
   g.step = a.integer("step");

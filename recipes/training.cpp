@@ -21,9 +21,9 @@ double mean_output(Objective objective, const Var<float>& scores) {
   const bool logistic = objective == Objective::kMinimax || objective == Objective::kNonSaturating;
   double sum = 0;
   const float* v = scores.value().data();
-  for (int64_t i = 0; i < scores.numel(); ++i)
+  for (int64_t i = 0; i < scores.element_count(); ++i)
     sum += logistic ? 1 / (1 + std::exp(-static_cast<double>(v[i]))) : v[i];
-  return sum / static_cast<double>(scores.numel());
+  return sum / static_cast<double>(scores.element_count());
 }
 
 // Numerical failure: the step, what went bad and its first bad value.
@@ -35,7 +35,7 @@ double mean_output(Objective objective, const Var<float>& scores) {
 void require_finite(int64_t step, const std::string& what, double value) {
   if (!std::isfinite(value)) non_finite(step, what, value);
 }
-// Each tensor of `tensors` (named by `names`, as "critic.down2.weight") must be finite;
+// Each tensor of `tensors` (named by `names`, as "critic/down2/filters") must be finite;
 // `role` says what they are ("the gradient of", "" for the parameters themselves).
 void require_finite(int64_t step, const std::string& role,
                     const std::vector<NamedTensor<float>>& names,
@@ -125,7 +125,7 @@ double TrainingRun::critic_step() {
   const int64_t step = steps_ + 1;
   Var<float> loss =
       discriminator_loss(options_.objective, real_scores, fake_scores, options_.least_squares);
-  require_finite(step, "the critic loss", loss.item());
+  require_finite(step, "the critic loss", loss.as_scalar());
   // The penalties differentiate the critic with respect to its input at fixed labels; the
   // interpolates of the gradient penalty keep the real samples' labels.
   const Critic<float> on_real_labels = [&](const Var<float>& x) {
@@ -134,12 +134,12 @@ double TrainingRun::critic_step() {
   if (options_.gradient_penalty > 0) {
     const Var<float> penalty = gradient_penalty(on_real_labels, real.samples, fake, tape_,
                                                 penalty_rng_, options_.gradient_penalty);
-    require_finite(step, "the gradient penalty", penalty.item());
+    require_finite(step, "the gradient penalty", penalty.as_scalar());
     loss = add(loss, penalty);
   }
   if (options_.r1 > 0) {
     const Var<float> penalty = r1_penalty(on_real_labels, real.samples, tape_, options_.r1);
-    require_finite(step, "the R1 penalty", penalty.item());
+    require_finite(step, "the R1 penalty", penalty.as_scalar());
     loss = add(loss, penalty);
   }
   const std::vector<Tensor<float>> gradients = parameter_gradients(loss, ctx, critic_params_);
@@ -147,7 +147,7 @@ double TrainingRun::critic_step() {
   critic_adam_.step(tensors_of(critic_params_), gradients);
   last_.real_score = mean_output(options_.objective, real_scores);
   last_.fake_score = mean_output(options_.objective, fake_scores);
-  return static_cast<double>(loss.item());
+  return static_cast<double>(loss.as_scalar());
 }
 
 StepReport TrainingRun::step() {
@@ -164,7 +164,7 @@ StepReport TrainingRun::step() {
   const Var<float> loss = generator_loss(options_.objective, run_critic(pair_, fake, labels, judge),
                                          options_.least_squares);
   const int64_t step = steps_ + 1;
-  const double value = loss.item();
+  const double value = loss.as_scalar();
   require_finite(step, "the generator loss", value);
   const std::vector<Tensor<float>> gradients = parameter_gradients(loss, ctx, generator_params_);
   require_finite(step, "the gradient of ", generator_params_, gradients);
@@ -213,7 +213,38 @@ void TrainingRun::fit_statistics_to_average() {
   run_generator(pair_, Var<float>(draw_latent(n, rng)), labels, pass);
 }
 
+int64_t upgrade_run_records(Archive& a) {
+  if (a.contains("run.format")) {
+    const int64_t format = a.integer("run.format");
+    if (format != kRunFormat)
+      raise(ErrorKind::kCorruptCheckpoint, a.source() + ": run format " + std::to_string(format) +
+                                               "; this spar reads formats 1 to " +
+                                               std::to_string(kRunFormat) +
+                                               " (written by a newer spar?)");
+    return format;
+  }
+  for (const std::string& name : a.names()) {
+    const auto starts = [&](const char* prefix) { return name.rfind(prefix, 0) == 0; };
+    const bool tensor =
+        a.kind(name) == RecordKind::kFloat32Tensor || a.kind(name) == RecordKind::kFloat64Tensor;
+    std::string now = name;
+    if (starts("optimiser.generator/") || starts("optimiser.critic/"))
+      now[std::string("optimiser").size()] = kNameSeparator;
+    else if (tensor && starts("average.generator."))
+      now = join_name("average", name_in_format_1(name.substr(8), a.tensor_shape(name)));
+    else if (tensor && (starts("generator.") || starts("critic.")))
+      now = name_in_format_1(name, a.tensor_shape(name));
+    if (now == name) continue;
+    if (a.contains(now))
+      raise(ErrorKind::kCorruptCheckpoint, a.source() + ": records '" + name + "' and '" + now +
+                                               "' are one tensor under its old and new name");
+    a.rename(name, now);
+  }
+  return 1;
+}
+
 void TrainingRun::save_generator(Archive& archive) {
+  archive.put_int("run.format", kRunFormat);
   swap_average();
   fit_statistics_to_average();
   pair_.generator->save(archive, "generator");
@@ -234,12 +265,13 @@ Tensor<float> TrainingRun::generate(const Tensor<float>& z, const std::vector<in
 }
 
 void TrainingRun::save(Archive& archive) {
+  archive.put_int("run.format", kRunFormat);
   pair_.generator->save(archive, "generator");
   pair_.critic->save(archive, "critic");
   for (size_t i = 0; i < average_.size(); ++i)
-    archive.put("average." + generator_params_[i].name, average_[i]);
-  generator_adam_.save(archive, "optimiser.generator");
-  critic_adam_.save(archive, "optimiser.critic");
+    archive.put(join_name("average", generator_params_[i].name), average_[i]);
+  generator_adam_.save(archive, join_name("optimiser", "generator"));
+  critic_adam_.save(archive, join_name("optimiser", "critic"));
   save_rng(archive, "stream.latent", latent_rng_);
   save_rng(archive, "stream.dropout", dropout_rng_);
   save_rng(archive, "stream.penalty", penalty_rng_);
@@ -251,9 +283,9 @@ void TrainingRun::load(const Archive& archive) {
   pair_.generator->load(archive, "generator");
   pair_.critic->load(archive, "critic");
   for (size_t i = 0; i < average_.size(); ++i)
-    average_[i] = archive.tensor<float>("average." + generator_params_[i].name);
-  generator_adam_.load(archive, "optimiser.generator");
-  critic_adam_.load(archive, "optimiser.critic");
+    average_[i] = archive.tensor<float>(join_name("average", generator_params_[i].name));
+  generator_adam_.load(archive, join_name("optimiser", "generator"));
+  critic_adam_.load(archive, join_name("optimiser", "critic"));
   // The recipe's rates hold (equal to the saved ones unless a resume changed them on purpose).
   generator_adam_.set_learning_rate(options_.generator_optimiser.learning_rate);
   critic_adam_.set_learning_rate(options_.critic_optimiser.learning_rate);

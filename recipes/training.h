@@ -72,6 +72,17 @@ struct StepReport {
   double real_score = 0, fake_score = 0;
 };
 
+// The run format: how state.spar and generator.spar name their records (docs/file-formats.md).
+// 2: model tensors named as layer.h says ("critic/down2/filters"), under "average/" and
+// "optimiser/" prefixes, and a "run.format" record holding 2. 1: no "run.format" record,
+// dotted names ("critic.down2.weight", "average.generator.up1.weight",
+// "optimiser.generator/m/0").
+constexpr int64_t kRunFormat = 2;
+// Gives the records of a file in an older run format their current names, so that every
+// reader sees one format; returns the format the file was written in. Raises
+// kCorruptCheckpoint for a format this code does not know (a newer spar's file).
+int64_t upgrade_run_records(Archive& archive);
+
 class TrainingRun {
  public:
   TrainingRun(GanPair pair, std::unique_ptr<DataSource> data, const TrainingOptions& options);
@@ -91,7 +102,7 @@ class TrainingRun {
   void save(Archive& archive);
   // Raises kCorruptCheckpoint naming what is missing or does not fit this architecture.
   void load(const Archive& archive);
-  // What sampling needs: the generator with its averaged weights, as "generator.*" records
+  // What sampling needs: the generator with its averaged weights, as "generator/..." records
   // (LayerStack::save), loadable by a generator of the same architecture.
   void save_generator(Archive& archive);
 

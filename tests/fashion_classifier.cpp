@@ -244,7 +244,7 @@ int run(const RunOptions& o) {
   int64_t weights = 0;
   for (const auto& p : params) {
     targets.push_back(p.tensor);
-    weights += p.tensor->numel();
+    weights += p.tensor->element_count();
   }
   std::printf(
       "model: %s\n%lld parameters; %d epochs, batch %lld, Adam learning rate %g, "
@@ -277,7 +277,7 @@ int run(const RunOptions& o) {
       const Var<float> logits = model.run(Var<float>(x), ctx);
       const Var<float> target(spar::one_hot<float>(labels, kClasses));
       const Var<float> loss = spar::mean(spar::class_cross_entropy(logits, target, 1));
-      const float value = loss.item();
+      const float value = loss.as_scalar();
       if (!std::isfinite(value)) {
         std::fprintf(stderr, "spar_fashion_classifier: loss is %g at epoch %d, step %lld\n",
                      static_cast<double>(value), epoch, static_cast<long long>(steps + 1));

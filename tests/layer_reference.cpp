@@ -5,7 +5,7 @@
 
 #include "layers/convolution.h"
 #include "layers/normalisation.h"
-#include "layers/spectral_norm.h"
+#include "layers/spectral_normalisation.h"
 
 using namespace spar;
 
@@ -13,7 +13,7 @@ namespace {
 void print(const char* name, const Tensor<double>& t) {
   std::printf("%s %d", name, t.rank());
   for (int i = 0; i < t.rank(); ++i) std::printf(" %lld", static_cast<long long>(t.dim(i)));
-  for (int64_t i = 0; i < t.numel(); ++i) std::printf(" %.17g", t.data()[i]);
+  for (int64_t i = 0; i < t.element_count(); ++i) std::printf(" %.17g", t.data()[i]);
   std::printf("\n");
 }
 }  // namespace

@@ -8,7 +8,7 @@
 //   spar_reference_dump cases          (lists the cases and their integer parameters)
 //
 // Tensor text format, one tensor per line, fields separated by spaces:
-//   rank d0 .. d(rank-1) v0 v1 .. v(numel-1)
+//   rank d0 .. d(rank-1) v0 v1 .. v(element_count-1)
 // Values are row-major decimals; "inf", "-inf" and "nan" are allowed. Output values are
 // printed with %.17g, which reads back as the same double exactly.
 //
@@ -87,7 +87,7 @@ const CaseInfo kCases[] = {
     {"log_sum_exp", 1, 2, 2, "AXIS KEEP(0|1)"},
     {"softmax", 1, 1, 1, "AXIS"},
     {"class_cross_entropy", 2, 1, 1, "AXIS (operands: logits, targets)"},
-    {"binary_cross_entropy_from_logits", 2, 0, 0, "(operands: logits, targets)"},
+    {"logistic_cross_entropy", 2, 0, 0, "(operands: logits, targets)"},
     {"convolution", 2, 4, 4,
      "STRIDE_H STRIDE_W PAD_H PAD_W (operands: x [N,C,H,W], w [O,C,KH,KW])"},
     {"transposed_convolution", 2, 6, 6,
@@ -144,8 +144,7 @@ Var<T> evaluate(const std::string& c, const std::vector<Var<T>>& x,
   if (c == "softmax") return spar::softmax(x[0], static_cast<int>(p[0]));
   if (c == "class_cross_entropy")
     return spar::class_cross_entropy(x[0], x[1], static_cast<int>(p[0]));
-  if (c == "binary_cross_entropy_from_logits")
-    return spar::binary_cross_entropy_from_logits(x[0], x[1]);
+  if (c == "logistic_cross_entropy") return spar::logistic_cross_entropy(x[0], x[1]);
   if (c == "convolution") return spar::convolution(x[0], x[1], geometry(p));
   if (c == "transposed_convolution")
     return spar::transposed_convolution(x[0], x[1], geometry(p), p[4], p[5]);
@@ -208,9 +207,10 @@ std::vector<TextTensor> read_tensors(const std::string& path) {
       t.shape.push_back(e);
     }
     const size_t count = tok.size() - 1 - static_cast<size_t>(rank);
-    if (static_cast<int64_t>(count) != t.shape.numel())
-      usage_error(where + ": shape " + t.shape.str() + " needs " + std::to_string(t.shape.numel()) +
-                  " values, found " + std::to_string(count));
+    if (static_cast<int64_t>(count) != t.shape.element_count())
+      usage_error(where + ": shape " + t.shape.str() + " needs " +
+                  std::to_string(t.shape.element_count()) + " values, found " +
+                  std::to_string(count));
     t.values.reserve(count);
     for (size_t i = 0; i < count; ++i) t.values.push_back(parse_double(tok[1 + rank + i], where));
     out.push_back(std::move(t));
@@ -241,7 +241,7 @@ class Output {
   void tensor(const Tensor<T>& t) {
     text_ += std::to_string(t.rank());
     for (int i = 0; i < t.rank(); ++i) text_ += " " + std::to_string(t.dim(i));
-    for (int64_t i = 0; i < t.numel(); ++i) {
+    for (int64_t i = 0; i < t.element_count(); ++i) {
       text_ += ' ';
       number(static_cast<double>(t.data()[i]));
     }
@@ -323,7 +323,7 @@ void run_normal(const std::vector<std::string>& args) {
   spar::Rng rng(seed, stream);
   const Tensor<double> z = rng.normal<double>(Shape{count});
   Output out(args[4]);
-  for (int64_t i = 0; i < z.numel(); ++i) out.line_of(z.data()[i]);
+  for (int64_t i = 0; i < z.element_count(); ++i) out.line_of(z.data()[i]);
   out.commit();
 }
 

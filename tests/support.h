@@ -34,7 +34,7 @@ inline ErrorKind error_kind_of(const std::function<void()>& fn, std::string* mes
 template <class T>
 bool same_bits(const Tensor<T>& a, const Tensor<T>& b) {
   return a.shape() == b.shape() &&
-         std::memcmp(a.data(), b.data(), static_cast<size_t>(a.numel()) * sizeof(T)) == 0;
+         std::memcmp(a.data(), b.data(), static_cast<size_t>(a.element_count()) * sizeof(T)) == 0;
 }
 
 // A scratch folder for one test case under the system's temporary folder, removed with its

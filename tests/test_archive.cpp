@@ -54,7 +54,7 @@ template <class T>
 Tensor<T> random_bits_tensor(const Shape& shape, uint64_t seed) {
   Tensor<T> t = Tensor<T>::uninitialised(shape);
   auto* bytes = reinterpret_cast<unsigned char*>(t.mutable_data());
-  for (size_t i = 0; i < static_cast<size_t>(t.numel()) * sizeof(T); ++i)
+  for (size_t i = 0; i < static_cast<size_t>(t.element_count()) * sizeof(T); ++i)
     bytes[i] = static_cast<unsigned char>(next_bits(seed));
   return t;
 }
@@ -62,7 +62,7 @@ Tensor<T> random_bits_tensor(const Shape& shape, uint64_t seed) {
 template <class T>
 bool same_bits(const Tensor<T>& a, const Tensor<T>& b) {
   return a.shape() == b.shape() &&
-         std::memcmp(a.data(), b.data(), static_cast<size_t>(a.numel()) * sizeof(T)) == 0;
+         std::memcmp(a.data(), b.data(), static_cast<size_t>(a.element_count()) * sizeof(T)) == 0;
 }
 
 // Little-endian field writers for building files by hand from docs/file-formats.md.
@@ -277,7 +277,7 @@ TEST_CASE("archive records: replace in place, copies, kinds and names", "[archiv
   a.put("x", Tensor<double>::scalar(2.5));  // replaces, keeping the position
   CHECK(a.names() == std::vector<std::string>{"x", "y"});
   CHECK(a.kind("x") == spar::RecordKind::kFloat64Tensor);
-  CHECK(a.tensor<double>("x").item() == 2.5);
+  CHECK(a.tensor<double>("x").as_scalar() == 2.5);
 
   // put() copies: changing the caller's tensor afterwards does not change the record.
   Tensor<float> t = Tensor<float>::full(Shape{3}, 1.0f);
@@ -305,6 +305,29 @@ TEST_CASE("archive records: replace in place, copies, kinds and names", "[archiv
   CHECK(error_kind_of([&] { a.put("u", Tensor<float>()); }) == ErrorKind::kBadArgument);
   a.put_int(std::string(65535, 'n'), 1);  // the longest name allowed
   CHECK(Archive::from_bytes(a.to_bytes(), "long").integer(std::string(65535, 'n')) == 1);
+}
+
+TEST_CASE("rename keeps a record's place and content and refuses taken or bad names", "[archive]") {
+  Archive a;
+  a.put_int("first", 1);
+  a.put("old", Tensor<float>::full(Shape{2}, 3.0f));
+  a.put_text("last", "z");
+  a.rename("old", "new");
+  CHECK(a.names() == std::vector<std::string>{"first", "new", "last"});
+  CHECK_FALSE(a.contains("old"));
+  CHECK(a.tensor<float>("new").to_vector() == std::vector<float>{3.0f, 3.0f});
+  const Archive back = Archive::from_bytes(a.to_bytes(), "renamed");
+  CHECK(back.names() == std::vector<std::string>{"first", "new", "last"});
+  a.rename("new", "new");  // to itself: nothing changes
+  CHECK(a.names() == std::vector<std::string>{"first", "new", "last"});
+  std::string message;
+  CHECK(error_kind_of([&] { a.rename("absent", "x"); }, &message) == ErrorKind::kBadArgument);
+  CHECK(message.find("'absent'") != std::string::npos);
+  CHECK(error_kind_of([&] { a.rename("new", "last"); }, &message) == ErrorKind::kBadArgument);
+  CHECK(message.find("taken") != std::string::npos);
+  CHECK(error_kind_of([&] { a.rename("new", ""); }) == ErrorKind::kBadArgument);
+  CHECK(error_kind_of([&] { a.rename("new", "\xC3\x28"); }) == ErrorKind::kBadArgument);
+  CHECK(a.names() == std::vector<std::string>{"first", "new", "last"});  // refusals change nothing
 }
 
 TEST_CASE("a truncated archive raises kCorruptCheckpoint at every length", "[archive]") {

@@ -146,7 +146,7 @@ namespace {
 double inner(const Tensor<double>& a, const Tensor<double>& b) {
   REQUIRE(a.shape() == b.shape());
   double sum = 0;
-  for (int64_t k = 0; k < a.numel(); ++k) sum += a.data()[k] * b.data()[k];
+  for (int64_t k = 0; k < a.element_count(); ++k) sum += a.data()[k] * b.data()[k];
   return sum;
 }
 

@@ -588,7 +588,7 @@ TEST_CASE("Fashion-MNIST's test split: 10,000 images [1, 28, 28], 1,000 per clas
   const float* v = d.samples.data();
   float low = v[0], high = v[0];
   bool on_grid = true;
-  for (int64_t i = 0; i < d.samples.numel(); ++i) {
+  for (int64_t i = 0; i < d.samples.element_count(); ++i) {
     low = std::min(low, v[i]);
     high = std::max(high, v[i]);
     const double level = (static_cast<double>(v[i]) + 1.0) * 127.5;

@@ -92,7 +92,7 @@ void check_fashion_split(const std::string& stem, int64_t images, int64_t per_cl
   const float* v = x.values.data();
   float low = v[0], high = v[0];
   bool whole = true;
-  for (int64_t i = 0; i < x.values.numel(); ++i) {
+  for (int64_t i = 0; i < x.values.element_count(); ++i) {
     low = std::min(low, v[i]);
     high = std::max(high, v[i]);
     whole = whole && v[i] == std::floor(v[i]);
@@ -137,7 +137,8 @@ TEST_CASE("idx: Fashion-MNIST first labels and pixel total") {
   // numpy.uint8).sum(dtype=numpy.int64) = 3431114169.
   const IdxTensor x = read_idx(kFashionDir + "train-images-idx3-ubyte.gz");
   int64_t total = 0;
-  for (int64_t i = 0; i < x.values.numel(); ++i) total += static_cast<int64_t>(x.values.data()[i]);
+  for (int64_t i = 0; i < x.values.element_count(); ++i)
+    total += static_cast<int64_t>(x.values.data()[i]);
   CHECK(total == 3431114169);
 }
 
@@ -228,11 +229,11 @@ TEST_CASE("idx: shapes are row-major, of rank 0 to kMaxRank, and may be empty") 
 
   const IdxTensor scalar = read_idx(write_plain(dir.file("rank0"), idx_file(0x08, {}, {42})));
   CHECK(scalar.values.shape() == Shape{});
-  CHECK(scalar.values.item() == 42.0f);
+  CHECK(scalar.values.as_scalar() == 42.0f);
 
   const IdxTensor empty = read_idx(write_plain(dir.file("empty"), idx_file(0x0D, {5, 0, 7}, {})));
   CHECK(empty.values.shape() == Shape({5, 0, 7}));
-  CHECK(empty.values.numel() == 0);
+  CHECK(empty.values.element_count() == 0);
   CHECK(
       read_idx_integers(write_gzip(dir.file("empty.gz"), idx_file(0x08, {0}, {}))).values.empty());
 
@@ -332,7 +333,7 @@ TEST_CASE("idx: a truncated or damaged gzip file errors instead of crashing") {
   Bytes data;
   for (int k = 0; k < 4096; ++k) data.push_back(static_cast<unsigned char>((k * 37) % 251));
   const std::string good = write_gzip(dir.file("good.gz"), idx_file(0x08, {64, 64}, data));
-  REQUIRE(read_idx(good).values.numel() == 4096);
+  REQUIRE(read_idx(good).values.element_count() == 4096);
   const Bytes packed = read_file(good);
   REQUIRE(packed.size() > 20);
   // Every proper prefix of the compressed file, from one that stops inside the gzip header to

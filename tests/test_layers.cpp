@@ -46,14 +46,38 @@ TEST_CASE("parameters and buffers carry stable hierarchical names", "[layers]") 
   LayerStack<float> net = small_critic(rng);
   std::vector<std::string> names;
   for (const auto& p : net.all_parameters("critic")) names.push_back(p.name);
-  CHECK(names == std::vector<std::string>{"critic.block1.conv.weight", "critic.block1.conv.bias",
-                                          "critic.block1.norm.scale", "critic.block1.norm.shift",
-                                          "critic.out.weight", "critic.out.bias"});
+  CHECK(names == std::vector<std::string>{"critic/block1/conv/filters", "critic/block1/conv/offset",
+                                          "critic/block1/norm/scale", "critic/block1/norm/shift",
+                                          "critic/out/matrix", "critic/out/offset"});
   std::vector<std::string> buffers;
   for (const auto& b : net.all_state("critic")) buffers.push_back(b.name);
-  CHECK(buffers == std::vector<std::string>{"critic.block1.norm.running_mean",
-                                            "critic.block1.norm.running_variance"});
+  CHECK(buffers == std::vector<std::string>{"critic/block1/norm/tracked_mean",
+                                            "critic/block1/norm/tracked_variance"});
   CHECK_THROWS_AS(net.emplace<Nonlinearity<float>>("out", NonlinearityKind::kTanh), Error);
+}
+
+TEST_CASE("format-1 names map to today's names", "[layers]") {
+  Rng rng(1, 1);
+  LayerStack<float> net = small_critic(rng);
+  std::vector<NamedTensor<float>> all = net.all_parameters("critic");
+  for (const NamedTensor<float>& s : net.all_state("critic")) all.push_back(s);
+  // The names run format 1 gave these tensors, in the same order (docs/file-formats.md).
+  const std::vector<std::string> old = {"critic.block1.conv.weight",
+                                        "critic.block1.conv.bias",
+                                        "critic.block1.norm.scale",
+                                        "critic.block1.norm.shift",
+                                        "critic.out.weight",
+                                        "critic.out.bias",
+                                        "critic.block1.norm.running_mean",
+                                        "critic.block1.norm.running_variance"};
+  REQUIRE(all.size() == old.size());
+  for (size_t i = 0; i < old.size(); ++i)
+    CHECK(name_in_format_1(old[i], all[i].tensor->shape()) == all[i].name);
+  CHECK(name_in_format_1("critic.down1.spectral_u", Shape{4, 1}) == "critic/down1/singular_left");
+  CHECK(name_in_format_1("critic.down1.spectral_v", Shape{9, 1}) == "critic/down1/singular_right");
+  CHECK(name_in_format_1("sample.dim0", Shape{}) == "sample.dim0");  // not a model tensor
+  CHECK(name_in_format_1("step", Shape{}) == "step");
+  CHECK(name_in_format_1("critic/out/matrix", Shape{4, 1}) == "critic/out/matrix");
 }
 
 TEST_CASE("a model saved to an archive loads back exactly and refuses another architecture",
@@ -75,7 +99,7 @@ TEST_CASE("a model saved to an archive loads back exactly and refuses another ar
   std::string message;
   CHECK(testing::error_kind_of([&] { other.load(archive, "critic"); }, &message) ==
         ErrorKind::kCorruptCheckpoint);
-  CHECK_THAT(message, Catch::Contains("critic.out.weight") && Catch::Contains("[128, 1]"));
+  CHECK_THAT(message, Catch::Contains("critic/out/matrix") && Catch::Contains("[128, 1]"));
 }
 
 TEST_CASE("initialisers follow their papers' distributions", "[layers][init]") {
@@ -84,9 +108,9 @@ TEST_CASE("initialisers follow their papers' distributions", "[layers][init]") {
   auto moments = [](const Tensor<double>& t) {
     double m = 0, v = 0;
     for (double x : t.to_vector()) m += x;
-    m /= t.numel();
+    m /= t.element_count();
     for (double x : t.to_vector()) v += (x - m) * (x - m);
-    return std::make_pair(m, v / t.numel());
+    return std::make_pair(m, v / t.element_count());
   };
   const int64_t n = 200000;
   // DCGAN (Radford et al. 2015): N(0, 0.02²).

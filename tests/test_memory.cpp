@@ -33,7 +33,7 @@ TEST_CASE("resident memory after 10,000 training steps equals that after 100", "
     tape.clear();
     Var<float> v1 = tape.variable(w1), v2 = tape.variable(w2);
     Var<float> logits = matmul(leaky_relu(matmul(Var<float>(x), v1), 0.2), v2);
-    Var<float> loss = mean(binary_cross_entropy_from_logits(logits, Var<float>(t)));
+    Var<float> loss = mean(logistic_cross_entropy(logits, Var<float>(t)));
     std::vector<Var<float>> g = tape.gradient(loss, {v1, v2});
     adam.step({&w1, &w2}, {g[0].value(), g[1].value()});
   };

@@ -24,7 +24,7 @@ TEST_CASE("minimax at D = 1/2 everywhere gives V = −log 4 (Goodfellow et al. 2
           "[objectives]") {
   const V zero = scores({0, 0, 0});
   // V(D, G) = −L_D.
-  CHECK(-discriminator_loss(Objective::kMinimax, zero, zero).item() ==
+  CHECK(-discriminator_loss(Objective::kMinimax, zero, zero).as_scalar() ==
         Approx(-std::log(4.0)).epsilon(1e-15));
 }
 
@@ -35,39 +35,40 @@ TEST_CASE("each objective's losses match their closed forms on hand-picked score
     const double ld =
         -(log_sigmoid_ref(2) + log_sigmoid_ref(-1)) / 2 -
         (std::log(1 - 1 / (1 + std::exp(-0.5))) + std::log(1 - 1 / (1 + std::exp(3.0)))) / 2;
-    CHECK(discriminator_loss(Objective::kMinimax, r, f).item() == Approx(ld).epsilon(1e-14));
-    CHECK(discriminator_loss(Objective::kNonSaturating, r, f).item() == Approx(ld).epsilon(1e-14));
+    CHECK(discriminator_loss(Objective::kMinimax, r, f).as_scalar() == Approx(ld).epsilon(1e-14));
+    CHECK(discriminator_loss(Objective::kNonSaturating, r, f).as_scalar() ==
+          Approx(ld).epsilon(1e-14));
     const double saturating =
         (std::log(1 - 1 / (1 + std::exp(-0.5))) + std::log(1 - 1 / (1 + std::exp(3.0)))) / 2;
-    CHECK(generator_loss(Objective::kMinimax, f).item() == Approx(saturating).epsilon(1e-14));
+    CHECK(generator_loss(Objective::kMinimax, f).as_scalar() == Approx(saturating).epsilon(1e-14));
     const double non_saturating = -(log_sigmoid_ref(0.5) + log_sigmoid_ref(-3)) / 2;
-    CHECK(generator_loss(Objective::kNonSaturating, f).item() ==
+    CHECK(generator_loss(Objective::kNonSaturating, f).as_scalar() ==
           Approx(non_saturating).epsilon(1e-14));
   }
   SECTION("least squares (Mao et al. 2017), a = −1, b = 1, c = 0 and a = 0, b = c = 1") {
     const V lr = scores({1, 0}), lf = scores({-1, 1});
-    CHECK(discriminator_loss(Objective::kLeastSquares, lr, lf).item() ==
+    CHECK(discriminator_loss(Objective::kLeastSquares, lr, lf).as_scalar() ==
           Approx(0.5 * 0.5 + 0.5 * 2.0));
-    CHECK(generator_loss(Objective::kLeastSquares, lf).item() == Approx(0.5));
+    CHECK(generator_loss(Objective::kLeastSquares, lf).as_scalar() == Approx(0.5));
     const LeastSquaresTargets zero_one{0, 1, 1};
-    CHECK(discriminator_loss(Objective::kLeastSquares, lr, lf, zero_one).item() ==
+    CHECK(discriminator_loss(Objective::kLeastSquares, lr, lf, zero_one).as_scalar() ==
           Approx(0.5 * 0.5 + 0.5 * 1.0));
-    CHECK(generator_loss(Objective::kLeastSquares, lf, zero_one).item() == Approx(0.5 * 2.0));
+    CHECK(generator_loss(Objective::kLeastSquares, lf, zero_one).as_scalar() == Approx(0.5 * 2.0));
   }
   SECTION("hinge (Miyato et al. 2018)") {
     const V hr = scores({0.5, 2}), hf = scores({-2, 0.3});
-    CHECK(discriminator_loss(Objective::kHinge, hr, hf).item() == Approx(0.25 + 0.65));
-    CHECK(generator_loss(Objective::kHinge, hf).item() == Approx(-(-2 + 0.3) / 2));
+    CHECK(discriminator_loss(Objective::kHinge, hr, hf).as_scalar() == Approx(0.25 + 0.65));
+    CHECK(generator_loss(Objective::kHinge, hf).as_scalar() == Approx(-(-2 + 0.3) / 2));
   }
   SECTION("wasserstein (Arjovsky et al. 2017)") {
-    CHECK(discriminator_loss(Objective::kWasserstein, r, f).item() ==
+    CHECK(discriminator_loss(Objective::kWasserstein, r, f).as_scalar() ==
           Approx((0.5 - 3) / 2 - (2 - 1) / 2.0));
-    CHECK(generator_loss(Objective::kWasserstein, f).item() == Approx(-(0.5 - 3) / 2));
+    CHECK(generator_loss(Objective::kWasserstein, f).as_scalar() == Approx(-(0.5 - 3) / 2));
   }
   SECTION("stable at extreme logits") {
     const V big = scores({200, -200});
-    CHECK(std::isfinite(discriminator_loss(Objective::kMinimax, big, big).item()));
-    CHECK(generator_loss(Objective::kNonSaturating, scores({-200})).item() == Approx(200));
+    CHECK(std::isfinite(discriminator_loss(Objective::kMinimax, big, big).as_scalar()));
+    CHECK(generator_loss(Objective::kNonSaturating, scores({-200})).as_scalar() == Approx(200));
   }
   CHECK(objective_from_string("hinge") == Objective::kHinge);
   CHECK_THROWS_WITH(objective_from_string("hing"),
@@ -128,7 +129,7 @@ TEST_CASE(
       x[i] = eps.at({n, 0}) * real.at({n, i}) + (1 - eps.at({n, 0})) * fake.at({n, i});
     expected += std::pow(std::sqrt(critic.squared_gradient_norm(x)) - 1, 2) / 2;
   }
-  CHECK(penalty.item() == Approx(10 * expected).epsilon(1e-7));
+  CHECK(penalty.as_scalar() == Approx(10 * expected).epsilon(1e-7));
 
   // The penalty's gradient with respect to the critic's weights flows through the recorded
   // backward pass; compare one entry with a difference of penalties.
@@ -140,7 +141,7 @@ TEST_CASE(
     const V wm = t.variable(moved);
     Critic<double> f2 = [&](const V& x) { return matmul(tanh(matmul(x, wm)), V(critic.v)); };
     Rng again(7, 3);
-    return gradient_penalty(f2, real, fake, t, again, 10.0).item();
+    return gradient_penalty(f2, real, fake, t, again, 10.0).as_scalar();
   };
   CHECK(analytic == Approx((penalty_with(1e-6) - penalty_with(-1e-6)) / 2e-6).epsilon(1e-6));
 }
@@ -151,7 +152,7 @@ TEST_CASE("R1 equals (γ/2)·E‖∇D(x)‖² by finite differences (Mescheder e
   const D real = D::from_values({2, 3}, {0.5, -1.0, 0.3, 1.2, 0.4, -0.7});
   Tape<double> tape;
   Critic<double> fn = [&](const V& x) { return matmul(tanh(matmul(x, V(critic.w))), V(critic.v)); };
-  const double r1 = r1_penalty(fn, real, tape, 10.0).item();
+  const double r1 = r1_penalty(fn, real, tape, 10.0).as_scalar();
   double expected = 0;
   for (int n = 0; n < 2; ++n) {
     double x[3] = {real.at({n, 0}), real.at({n, 1}), real.at({n, 2})};

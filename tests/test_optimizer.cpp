@@ -55,7 +55,7 @@ std::vector<Tensor<T>> quadratic_grads(const std::vector<Tensor<T>>& params) {
   size_t k = 0;
   for (const Tensor<T>& p : params) {
     Tensor<T> g = Tensor<T>::uninitialised(p.shape());
-    for (int64_t i = 0; i < p.numel(); ++i, ++k)
+    for (int64_t i = 0; i < p.element_count(); ++i, ++k)
       g.mutable_data()[i] = T(kCurvature[k]) * (p.data()[i] - T(kCentre[k]));
     grads.push_back(g);
   }
@@ -73,7 +73,7 @@ template <class T>
 std::vector<double> flatten(const std::vector<Tensor<T>>& params) {
   std::vector<double> out;
   for (const Tensor<T>& p : params)
-    for (int64_t i = 0; i < p.numel(); ++i) out.push_back(static_cast<double>(p.data()[i]));
+    for (int64_t i = 0; i < p.element_count(); ++i) out.push_back(static_cast<double>(p.data()[i]));
   return out;
 }
 
@@ -236,7 +236,7 @@ TEMPLATE_TEST_CASE("momentum SGD and RMSProp follow their update rules", "[optim
     const std::vector<Tensor<T>> one = {Tensor<T>::scalar(T(1))};
     for (double want : {0.9, 0.75, 0.575}) {
       sgd.step(pointers(params), one);
-      CHECK(std::abs(static_cast<double>(params[0].item()) - want) <= 4 * u);
+      CHECK(std::abs(static_cast<double>(params[0].as_scalar()) - want) <= 4 * u);
     }
   }
   SECTION("RMSProp, hand-computed: g = 2 constant, rho = 0.75, lr = 0.1") {
@@ -247,7 +247,7 @@ TEMPLATE_TEST_CASE("momentum SGD and RMSProp follow their update rules", "[optim
     const std::vector<Tensor<T>> two = {Tensor<T>::scalar(T(2))};
     for (double want : {0.8, 0.6488142}) {
       rms.step(pointers(params), two);
-      CHECK(std::abs(static_cast<double>(params[0].item()) - want) <= 1e-7 + 4 * u);
+      CHECK(std::abs(static_cast<double>(params[0].as_scalar()) - want) <= 1e-7 + 4 * u);
     }
   }
   SECTION("30 steps of a fixed gradient sequence against re-derivations in double") {

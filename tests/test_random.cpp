@@ -66,7 +66,7 @@ double spec_unit_double(uint32_t hi, uint32_t lo) {
 template <class T>
 bool same_bits(const Tensor<T>& a, const Tensor<T>& b) {
   return a.shape() == b.shape() &&
-         std::memcmp(a.data(), b.data(), sizeof(T) * static_cast<size_t>(a.numel())) == 0;
+         std::memcmp(a.data(), b.data(), sizeof(T) * static_cast<size_t>(a.element_count())) == 0;
 }
 
 spar::ErrorKind kind_raised(const std::function<void()>& f) {
@@ -84,7 +84,7 @@ struct Moments {
 };
 template <class T>
 Moments moments(const Tensor<T>& t) {
-  const int64_t n = t.numel();
+  const int64_t n = t.element_count();
   double sum = 0;
   for (int64_t i = 0; i < n; ++i) sum += t.data()[i];
   Moments m;
@@ -199,7 +199,7 @@ TEMPLATE_TEST_CASE("every element of a fill comes from its own fixed counter", "
       Tensor<TestType> tail = normal ? b.normal<TestType>(Shape{n - skip_blocks * kPerBlock})
                                      : b.uniform<TestType>(Shape{n - skip_blocks * kPerBlock});
       CHECK(std::memcmp(whole.data() + skip_blocks * kPerBlock, tail.data(),
-                        sizeof(TestType) * static_cast<size_t>(tail.numel())) == 0);
+                        sizeof(TestType) * static_cast<size_t>(tail.element_count())) == 0);
     }
   }
 }
@@ -231,7 +231,7 @@ TEMPLATE_TEST_CASE("same seed and stream give identical tensors, other streams d
   Tensor<TestType> s = other_stream.uniform<TestType>(shape);
   Tensor<TestType> k = other_seed.uniform<TestType>(shape);
   int64_t same_as_stream = 0, same_as_seed = 0;
-  for (int64_t i = 0; i < base.numel(); ++i) {
+  for (int64_t i = 0; i < base.element_count(); ++i) {
     same_as_stream += base.data()[i] == s.data()[i];
     same_as_seed += base.data()[i] == k.data()[i];
   }
@@ -302,7 +302,8 @@ TEMPLATE_TEST_CASE("uniform values lie at or above low and below high, with the 
     // [1, next value after 1) holds only 1; low + (high - low) u rounds to high for u > 1/2.
     const TestType one = 1, next = std::nextafter(one, TestType(2));
     Tensor<TestType> v = rng.uniform<TestType>(Shape{4096}, one, next);
-    CHECK(std::all_of(v.data(), v.data() + v.numel(), [&](TestType x) { return x == one; }));
+    CHECK(
+        std::all_of(v.data(), v.data() + v.element_count(), [&](TestType x) { return x == one; }));
   }
 }
 

@@ -132,6 +132,31 @@ TEST_CASE("settings from the command line use TOML values, bare words as strings
                  "must be an integer, not the string \"ten\""));
 }
 
+TEST_CASE("a key under its old name is read as the new one, with a note", "[recipe]") {
+  std::vector<std::string> notes;
+  const Recipe r = parse_recipe("[model]\nspectral_norm = true\n", "old.toml", &notes);
+  CHECK(r.spectral_normalisation);
+  REQUIRE(notes.size() == 1);
+  CHECK(notes[0] ==
+        "old.toml: model.spectral_norm is now called model.spectral_normalisation; the old name "
+        "is still read, for now");
+  CHECK(parse_recipe("[model]\nspectral_norm = true\n", "old.toml").spectral_normalisation);
+  Recipe s;
+  notes.clear();
+  CHECK(apply_setting(s, "model.spectral_norm=true", "--set", &notes) ==
+        "model.spectral_normalisation");
+  CHECK(s.spectral_normalisation);
+  CHECK(notes.size() == 1);
+  // The resolved recipe uses the new name only.
+  CHECK(contains(to_toml(s), "\nspectral_normalisation = true\n"));
+  CHECK_FALSE(contains(to_toml(s), "spectral_norm ="));
+  CHECK(contains(recipe_error([] {
+                   parse_recipe("[model]\nspectral_norm = true\nspectral_normalisation = false\n",
+                                "both.toml");
+                 }),
+                 "both.toml:3: model.spectral_normalisation: given twice"));
+}
+
 TEST_CASE("load_recipe names the presets when given neither a preset nor a file", "[recipe]") {
   const std::string m = recipe_error([] { load_recipe("/no/such/recipe.toml"); });
   CHECK(contains(m, "/no/such/recipe.toml: neither a preset ("));

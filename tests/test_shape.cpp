@@ -32,7 +32,7 @@ TEST_CASE("checked_element_count: products, zeros and overflow", "[shape]") {
 }
 
 TEST_CASE("Shape keeps its element count within kMaxElements", "[shape]") {
-  CHECK(Shape{1 << 24, 1 << 24}.numel() == kMaxElements);
+  CHECK(Shape{1 << 24, 1 << 24}.element_count() == kMaxElements);
   std::string message;
   CHECK(error_kind_of([] { Shape{int64_t{1} << 62, 2, 0}; }, &message) == ErrorKind::kBadShape);
   CHECK(message.find("elements") != std::string::npos);
@@ -53,10 +53,10 @@ TEST_CASE("PoolLimit refuses the first block past its budget, then lifts", "[sha
     CHECK(error_kind_of([] { Tensor<float>::zeros({1 << 20}); }, &message) ==
           ErrorKind::kCorruptCheckpoint);  // 4 MiB
     CHECK(message == "too big for its file");
-    CHECK(small.numel() == 1000);
+    CHECK(small.element_count() == 1000);
   }
-  CHECK(Tensor<float>::zeros({1 << 20}).numel() == 1 << 20);  // no limit any more
-  CHECK(kept.numel() == 1024);
+  CHECK(Tensor<float>::zeros({1 << 20}).element_count() == 1 << 20);  // no limit any more
+  CHECK(kept.element_count() == 1024);
 }
 
 }  // namespace

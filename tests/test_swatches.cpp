@@ -113,7 +113,7 @@ TEST_CASE("swatches come as [count, 3, size, size] in [-1, 1] with balanced labe
     CHECK(*std::max_element(per_class.begin(), per_class.end()) == 13);
     const float* v = d.samples.data();
     int64_t outside = 0;
-    for (int64_t k = 0; k < d.samples.numel(); ++k) outside += !(v[k] >= -1 && v[k] <= 1);
+    for (int64_t k = 0; k < d.samples.element_count(); ++k) outside += !(v[k] >= -1 && v[k] <= 1);
     CHECK(outside == 0);  // also catches NaN
   }
 }

@@ -126,8 +126,8 @@ TEST_CASE("invariant 7: the no-record switch belongs to one thread", "[tape]") {
 }
 
 TEST_CASE("invariant 8: fused and recorded adjoints give the same gradient", "[tape]") {
-  // batch_normalise, leaky relu, relu and tanh have fused adjoints; the recorded backward pass composes
-  // ops instead. Both must agree, and only the recorded one may be differentiated again.
+  // batch_normalise, leaky relu, relu and tanh have fused adjoints; the recorded backward pass
+  // composes ops instead. Both must agree, and only the recorded one may be differentiated again.
   Rng rng(8, 1);
   const D x0 = rng.uniform<double>({4, 3, 2, 2}, -2, 2),
           w0 = rng.uniform<double>({4, 3, 2, 2}, -1, 1);
@@ -145,7 +145,7 @@ TEST_CASE("invariant 8: fused and recorded adjoints give the same gradient", "[t
   };
   const std::vector<D> fused = gradients(false), recorded = gradients(true);
   for (size_t k = 0; k < fused.size(); ++k)
-    for (int64_t i = 0; i < fused[k].numel(); ++i)
+    for (int64_t i = 0; i < fused[k].element_count(); ++i)
       CHECK(fused[k].data()[i] == Approx(recorded[k].data()[i]).margin(1e-12).epsilon(1e-12));
 }
 

@@ -80,7 +80,7 @@ void remove_scratch(const std::string& name) {
 
 void require_unit_range(const Tensor<float>& samples, const char* what) {
   const float* v = samples.data();
-  for (int64_t i = 0; i < samples.numel(); ++i) {
+  for (int64_t i = 0; i < samples.element_count(); ++i) {
     if (!(v[i] >= -1.0f && v[i] <= 1.0f)) {  // also false for NaN
       finding(std::string(what) + ": sample value " + std::to_string(v[i]) + " at element " +
               std::to_string(i) + " is outside [-1, 1]");

@@ -6,6 +6,9 @@
 // runs go to one fixed folder (<temporary folder>/spar-fuzz-make-corpus, whose path the table
 // generator's recipe holds), so the output is the same on every machine apart from each run's
 // own identity (run.id in the saved generators and states), which differs from run to run.
+// The corpora's *-format-1.spar files are not written here: they are this program's output
+// from before run format 2 (docs/file-formats.md, "Run formats"), kept as seeds of the path
+// that reads older files.
 #include <stb/stb_image_write.h>
 
 #include <cstdint>

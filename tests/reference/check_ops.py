@@ -633,10 +633,10 @@ def check_unary(dump, rng, dtype):
     return groups
 
 
-def check_bce(dump, rng, dtype):
+def check_logistic_cross_entropy(dump, rng, dtype):
     u = unit_roundoff(dtype)
     big = 700.0 if dtype == "f64" else 80.0
-    g = Group(f"binary_cross_entropy_from_logits {dtype} at logits +-1000, +-{big:g}, +-100, +-30 "
+    g = Group(f"logistic_cross_entropy {dtype} at logits +-1000, +-{big:g}, +-100, +-30 "
               f"with targets 0, 0.3, 1, and its gradients",
               "reference -(t scipy.special.log_expit(z) + (1-t) log_expit(-z)); the engine's "
               "softplus(z) - t z subtracts terms of size |z|: |error| <= 16u (softplus(z) + "
@@ -647,7 +647,7 @@ def check_bce(dump, rng, dtype):
     z = as_dtype(z, dtype)
     t = as_dtype(t, dtype)
     w = as_dtype(rng.standard_normal(z.shape), dtype)
-    y, gz, gt = dump.run(dtype, "binary_cross_entropy_from_logits", [z, t], w)
+    y, gz, gt = dump.run(dtype, "logistic_cross_entropy", [z, t], w)
     ref = -(t * special.log_expit(z) + (1 - t) * special.log_expit(-z))
     step = 8 * subnormal_step(dtype)  # softplus(-100) = 3.7e-44 is subnormal in float32
     g.compare("value", y, ref, 16 * u * (np.logaddexp(0.0, z) + np.abs(t * z)) + step)
@@ -726,7 +726,7 @@ def run_checks(script, argv, make_checks, seed=SEED):
 def main(argv):
     groups = (check_matmul, check_sums, check_max, check_log_sum_exp,
               check_log_sum_exp_special, check_softmax, check_broadcast, check_shapes,
-              check_unary, check_bce, check_softmax_cross_entropy)
+              check_unary, check_logistic_cross_entropy, check_softmax_cross_entropy)
     return run_checks("check_ops.py", argv, lambda rng: [
         (f"{check.__name__} {dtype}", lambda d, c=check, t=dtype: c(d, rng, t))
         for dtype in ("f64", "f32") for check in groups])

@@ -35,13 +35,13 @@ class SpectralNormaliser {
 };
 
 // The weight, optional bias and optional spectral normaliser that dense and convolution layers
-// share: one place for their initialisation order, their names ("weight", "bias",
-// "spectral_u", "spectral_v") and the normalised weight a step uses.
+// share: one place for their initialisation order, their names ("matrix" or "filters",
+// "offset", "singular_left", "singular_right"; layer.h) and the normalised weight a step uses.
 template <class T>
 struct WeightAndBias {
   WeightAndBias() = default;
   // The weight is drawn first, then the normaliser's vectors (rows × cols view of the weight).
-  WeightAndBias(const Tensor<T>& initial_weight, int64_t bias_size, bool spectral_norm,
+  WeightAndBias(const Tensor<T>& initial_weight, int64_t bias_size, bool spectral_normalisation,
                 int64_t rows, int64_t cols, Rng& rng);
   // The step's weight variable, divided by its spectral norm when enabled.
   Var<T> weight_for(Context<T>& ctx);

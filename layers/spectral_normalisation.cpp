@@ -1,4 +1,4 @@
-#include "layers/spectral_norm.h"
+#include "layers/spectral_normalisation.h"
 
 #include <cmath>
 
@@ -33,7 +33,7 @@ Var<T> SpectralNormaliser<T>::apply(const Var<T>& w, Context<T>& ctx) {
   }
   const Var<T> u(u_), v(v_);
   const Var<T> sigma = reshape(matmul(matmul(u, matrix, true, false), v), Shape{});  // uᵀ W v
-  last_sigma_ = static_cast<double>(sigma.item());
+  last_sigma_ = static_cast<double>(sigma.as_scalar());
   return divide(w, sigma);
 }
 
@@ -41,16 +41,16 @@ template <class T>
 void SpectralNormaliser<T>::collect_state(const std::string& prefix,
                                           std::vector<NamedTensor<T>>& out) {
   if (!enabled()) return;
-  out.push_back({join_name(prefix, "spectral_u"), &u_});
-  out.push_back({join_name(prefix, "spectral_v"), &v_});
+  out.push_back({join_name(prefix, "singular_left"), &u_});
+  out.push_back({join_name(prefix, "singular_right"), &v_});
 }
 
 template <class T>
 WeightAndBias<T>::WeightAndBias(const Tensor<T>& initial_weight, int64_t bias_size,
-                                bool spectral_norm, int64_t rows, int64_t cols, Rng& rng)
+                                bool spectral_normalisation, int64_t rows, int64_t cols, Rng& rng)
     : weight(initial_weight) {
   if (bias_size > 0) bias = Tensor<T>::zeros({bias_size});
-  if (spectral_norm) normaliser = SpectralNormaliser<T>(rows, cols, rng);
+  if (spectral_normalisation) normaliser = SpectralNormaliser<T>(rows, cols, rng);
 }
 
 template <class T>
@@ -62,8 +62,8 @@ Var<T> WeightAndBias<T>::weight_for(Context<T>& ctx) {
 template <class T>
 void WeightAndBias<T>::collect_parameters(const std::string& prefix,
                                           std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "weight"), &weight});
-  if (has_bias()) out.push_back({join_name(prefix, "bias"), &bias});
+  out.push_back({join_name(prefix, weight_role(weight.shape())), &weight});
+  if (has_bias()) out.push_back({join_name(prefix, "offset"), &bias});
 }
 
 template <class T>
