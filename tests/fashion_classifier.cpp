@@ -2,7 +2,7 @@
 // convolutional classifier on Fashion-MNIST with spar's engine, layers and IDX reader, then
 // reports test accuracy and exits 0 only when it reaches the --require bar.
 //
-// Yardstick (REFERENCES.md, Fashion-MNIST): the dataset README's contributed two-convolution
+// Yardstick (docs/references.md, Fashion-MNIST): the dataset README's contributed two-convolution
 // networks reach 0.876 to 0.932 test accuracy; Xiao et al. 2017, Table 3, report 0.897 for an
 // RBF support-vector classifier and 0.871 for a one-hidden-layer perceptron.
 //

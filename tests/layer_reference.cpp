@@ -38,10 +38,10 @@ int main() {
   print("bn_scale", *params[0].tensor);
   print("bn_shift", *params[1].tensor);
   print("bn_train_y", norm.run(Var<double>(x), train).value());
-  std::vector<NamedTensor<double>> buffers;
-  norm.collect_state("", buffers);
-  print("bn_running_mean", *buffers[0].tensor);
-  print("bn_running_variance", *buffers[1].tensor);
+  std::vector<NamedTensor<double>> state;
+  norm.collect_state("", state);
+  print("bn_running_mean", *state[0].tensor);
+  print("bn_running_variance", *state[1].tensor);
   print("bn_eval_x", x_eval);
   print("bn_eval_y", norm.run(Var<double>(x_eval), eval).value());
 

@@ -562,7 +562,7 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
 
 // ---- IDX ----------------------------------------------------------------------------------
 
-// Xiao et al. 2017 (REFERENCES.md): the test split is 10,000 28×28 grayscale images, ten classes
+// Xiao et al. 2017 (docs/references.md): the test split is 10,000 28×28 grayscale images, ten classes
 // of 1,000; the label names in order.
 const std::vector<std::string> kFashionNames = {"T-shirt/top", "Trouser",   "Pullover", "Dress",
                                                 "Coat",        "Sandal",    "Shirt",    "Sneaker",
@@ -646,7 +646,7 @@ TEST_CASE("small IDX files: exact values and labels, mismatches name the file", 
 
 // ---- tables --------------------------------------------------------------------------------
 
-// The digits table (REFERENCES.md): 1,797 rows of 64 pixel values 0 to 16, then the label of
+// The digits table (docs/references.md): 1,797 rows of 64 pixel values 0 to 16, then the label of
 // 10 classes. tests/reference/check_table.py compares every value with numpy.loadtxt.
 TEST_CASE("the digits table: 1,797 samples of 64 features, 10 classes", "[datasets]") {
   TableOptions options;

@@ -115,7 +115,7 @@ void check_fashion_split(const std::string& stem, int64_t images, int64_t per_cl
     INFO("class " << c);
     CHECK(counts[static_cast<size_t>(c)] == per_class);
   }
-  // "The released files are not sorted by label" (REFERENCES.md, Fashion-MNIST).
+  // "The released files are not sorted by label" (docs/references.md, Fashion-MNIST).
   CHECK_FALSE(std::is_sorted(y.values.begin(), y.values.end()));
 }
 

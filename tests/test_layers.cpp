@@ -41,7 +41,7 @@ LayerStack<float> small_critic(Rng& rng) {
 }
 }  // namespace
 
-TEST_CASE("parameters and buffers carry stable hierarchical names", "[layers]") {
+TEST_CASE("parameters and state tensors carry stable hierarchical names", "[layers]") {
   Rng rng(1, 1);
   LayerStack<float> net = small_critic(rng);
   std::vector<std::string> names;
@@ -49,9 +49,9 @@ TEST_CASE("parameters and buffers carry stable hierarchical names", "[layers]") 
   CHECK(names == std::vector<std::string>{"critic/block1/conv/filters", "critic/block1/conv/offset",
                                           "critic/block1/norm/scale", "critic/block1/norm/shift",
                                           "critic/out/matrix", "critic/out/offset"});
-  std::vector<std::string> buffers;
-  for (const auto& b : net.all_state("critic")) buffers.push_back(b.name);
-  CHECK(buffers == std::vector<std::string>{"critic/block1/norm/tracked_mean",
+  std::vector<std::string> state;
+  for (const auto& b : net.all_state("critic")) state.push_back(b.name);
+  CHECK(state == std::vector<std::string>{"critic/block1/norm/tracked_mean",
                                             "critic/block1/norm/tracked_variance"});
   CHECK_THROWS_AS(net.emplace<Nonlinearity<float>>("out", NonlinearityKind::kTanh), Error);
 }

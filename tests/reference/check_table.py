@@ -3,7 +3,7 @@
 
 Usage: /usr/bin/python3 check_table.py PATH_TO_SPAR_TABLE_REFERENCE
 
-The digits table is python3-sklearn's copy of the UCI optical digits set (REFERENCES.md):
+The digits table is python3-sklearn's copy of the UCI optical digits set (docs/references.md):
 1,797 rows of 64 pixel values 0 to 16, then the class label 0 to 9. spar_table_reference
 (tests/table_reference.cpp) loads it with the label in the last column and the range [0, 16]
 mapped to [-1, 1], and prints the shape, the labels, per-column means, minima and maxima,
@@ -59,7 +59,7 @@ def check_digits(program):
     k = int(labels.max()) + 1
 
     g = Group("digits table: shape, labels, class counts",
-              "numpy.loadtxt; exact; REFERENCES.md: 1,797 rows, 64 features, 10 classes")
+              "numpy.loadtxt; exact; docs/references.md: 1,797 rows, 64 features, 10 classes")
     g.compare("shape", got["shape"], np.array([n, f], dtype=np.float64), 0)
     g.compare("published shape", got["shape"], np.array([1797, 64], dtype=np.float64), 0)
     g.compare("classes", got["classes"], np.array([float(k)]), 0)
