@@ -11,7 +11,7 @@
 #include "benchmarks/bench.h"
 #include "engine/kernels.h"
 #include "engine/parallel.h"
-#include "recipes/run.h"
+#include "recipes/run_parts.h"
 
 namespace spar {
 namespace bench {
@@ -21,10 +21,10 @@ void training_preset(const BenchOptions& o, const std::string& preset,
                      std::vector<BenchRow>& rows) {
   Recipe r = load_recipe(preset);
   if (o.quick) {
-    r.swatch_count = 64;
-    r.batch = 8;
-    r.width = 4;
-    if (r.data_source == "idx") return;  // loading 60,000 images is not a smoke run
+    r.data.swatch_count = 64;
+    r.training.batch = 8;
+    r.model.width = 4;
+    if (r.data.source == "idx") return;  // loading 60,000 images is not a smoke run
   }
   std::unique_ptr<DataSource> data = make_data_source(r);
   const Shape shape = data->sample_shape();
@@ -50,13 +50,14 @@ void training_preset(const BenchOptions& o, const std::string& preset,
         Eigen::setNbThreads(1);
       },
       o.quick ? 0.01 : 0.5);
-  const std::string size = "batch " + std::to_string(r.batch) + ", " + shape.str() + ", width " +
-                           std::to_string(r.width);
+  const std::string size = "batch " + std::to_string(r.training.batch) + ", " + shape.str() +
+                           ", width " + std::to_string(r.model.width);
   rows.push_back({"training step, " + preset + " preset", size, "GFLOP/s",
                   static_cast<double>(step_flops) / step_s / 1e9, gemm_flops / gemm_s / 1e9, 0.5,
                   true});
   rows.push_back({"training images per second, " + preset + " preset", size, "images/s",
-                  static_cast<double>(r.batch * r.critic_steps) / step_s, 0, 0, true});
+                  static_cast<double>(r.training.batch * r.objective.critic_steps) / step_s, 0, 0,
+                  true});
 }
 
 void training(const BenchOptions& o, std::vector<BenchRow>& rows) {

@@ -9,10 +9,13 @@
 #include "cli/commands.h"
 #include "cli/output.h"
 #include "engine/error.h"
+#include "recipes/data_sources.h"
 #include "recipes/evaluation.h"
 #include "recipes/mixtures.h"
 #include "recipes/pictures.h"
-#include "recipes/run.h"
+#include "recipes/run_parts.h"
+#include "recipes/sample_writers.h"
+#include "recipes/saved_generator.h"
 
 namespace spar {
 namespace cli {
@@ -93,11 +96,9 @@ int run_sample(const SampleOptions& o) {
   } else {
     if (!ends_with(out, ".png"))
       raise(ErrorKind::kBadArgument, out + ": pictures are PNG; name a .png file");
-    const int64_t columns =
-        g.class_names.empty() || c >= 0
-            ? static_cast<int64_t>(std::ceil(std::sqrt(static_cast<double>(o.count))))
-            : static_cast<int64_t>(g.class_names.size());
-    write_samples_picture(g.recipe, samples, columns, out);
+    // One column per class when the classes come in turn, as in the run folder's pictures.
+    const int64_t classes = c >= 0 ? 0 : static_cast<int64_t>(g.class_names.size());
+    write_samples_picture(g.recipe, samples, grid_columns(o.count, classes), out);
   }
   std::cout << "wrote " << o.count << " samples (step " << g.step << ") to " << out << "\n";
   return 0;
@@ -135,10 +136,10 @@ int run_evaluate(const EvaluateOptions& o) {
   const Recipe& r = g.recipe;
   std::vector<std::pair<std::string, std::string>> figures;  // (name, JSON value)
   std::vector<std::vector<std::string>> table;
-  if (r.data_source == "ring8" || r.data_source == "grid25") {
+  if (const DataSourceInfo& source = data_source_of(r); source.endless()) {
     // Srivastava et al. 2017 (VEEGAN): 2,500 samples, high quality within 3σ of a mode.
     const Tensor<float> points = generate_samples(g, o.count, static_cast<uint64_t>(o.seed), -1);
-    const ModeCoverage m = mode_coverage(mixture_by_name(r.data_source), points);
+    const ModeCoverage m = mode_coverage(source.mixture(), points);
     figures = {{"modes_captured", std::to_string(m.modes_captured)},
                {"modes_total", std::to_string(m.modes_total)},
                {"high_quality_fraction", json_number(m.high_quality_fraction)}};
@@ -229,9 +230,10 @@ int run_inspect(const InspectOptions& o) {
   const std::string recipe_text = text_of("recipe");
   if (!recipe_text.empty()) {
     const Recipe r = parse_recipe(recipe_text, path + " (its recipe)");
-    std::cout << "recipe: data " << r.data_source << ", model " << r.model
-              << (r.conditional ? " (conditional)" : "") << ", objective " << r.objective << ", "
-              << r.steps << " steps of batch " << r.batch << ", seed " << r.seed << "\n";
+    std::cout << "recipe: data " << r.data.source << ", model " << r.model.kind
+              << (r.model.conditional ? " (conditional)" : "") << ", objective " << r.objective.name
+              << ", " << r.training.steps << " steps of batch " << r.training.batch << ", seed "
+              << r.training.seed << "\n";
     if (o.recipe) std::cout << "\n" << recipe_text << "\n";
   }
   std::vector<std::vector<std::string>> rows;

@@ -11,7 +11,7 @@
 
 #include "cli/commands.h"
 #include "cli/output.h"
-#include "recipes/run.h"
+#include "recipes/run_folder.h"
 
 namespace spar {
 namespace cli {
@@ -131,10 +131,10 @@ int run_train(const TrainOptions& o) {
   Recipe recipe = load_recipe(o.recipe, &notes);
   for (const std::string& s : o.settings) apply_setting(recipe, s, "--set " + s, &notes);
   for (const std::string& note : notes) std::cerr << "spar: note: " << note << "\n";
-  if (o.steps > 0) recipe.steps = o.steps;
-  if (o.seed >= 0) recipe.seed = o.seed;
+  if (o.steps > 0) recipe.training.steps = o.steps;
+  if (o.seed >= 0) recipe.training.seed = o.seed;
   Run run = Run::start(o.out, recipe, o.force);
-  return train_to(run, recipe.steps, o.quiet);
+  return train_to(run, recipe.training.steps, o.quiet);
 }
 
 Subcommand add_train(CLI::App& parent) {
@@ -188,7 +188,7 @@ Subcommand add_resume(CLI::App& parent) {
   app->add_flag("--quiet", o->quiet, "Print no progress");
   return {app, [o] {
             Run run = Run::reopen(o->folder, o->settings);
-            const int64_t total = o->steps > 0 ? o->steps : run.recipe().steps;
+            const int64_t total = o->steps > 0 ? o->steps : run.recipe().training.steps;
             if (o->steps > 0) run.plan_steps(total);
             if (total <= run.steps_done()) {
               std::cerr << "spar: " << o->folder << " has already done " << run.steps_done()
@@ -221,13 +221,13 @@ Subcommand add_demo(CLI::App& parent) {
   app->add_flag("--quiet", o->quiet, "Print no progress");
   return {app, [o] {
             Recipe recipe = load_recipe("swatches");
-            if (o->steps > 0) recipe.steps = o->steps;
+            if (o->steps > 0) recipe.training.steps = o->steps;
             Run run = Run::start(o->out, recipe, o->force);
             if (!o->quiet)
-              std::cerr << "spar demo: training on " << recipe.swatch_count
-                        << " procedural fabric swatches for " << recipe.steps << " steps into "
-                        << o->out << "/\n";
-            const int code = train_to(run, recipe.steps, o->quiet);
+              std::cerr << "spar demo: training on " << recipe.data.swatch_count
+                        << " procedural fabric swatches for " << recipe.training.steps
+                        << " steps into " << o->out << "/\n";
+            const int code = train_to(run, recipe.training.steps, o->quiet);
             if (code == 0)
               std::cout << "Pictures: " << run.samples_path(run.steps_done())
                         << " (earlier steps beside it)\nCurves:   " << o->out

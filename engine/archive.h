@@ -79,7 +79,7 @@ class Archive {
   std::string to_bytes() const;
   static Archive from_bytes(const std::string& bytes, const std::string& label);
 
-  // The bytes of to_bytes(), streamed to the file with write_file_atomically (below).
+  // The bytes of to_bytes(), streamed to the file with write_file_atomically (atomic_file.h).
   void write_file(const std::string& path) const;
   // Raises kIo when the file cannot be opened or read, kCorruptCheckpoint when it does not
   // pass the reader's checks.
@@ -107,19 +107,6 @@ class Archive {
 
 extern template Tensor<float> Archive::tensor<float>(const std::string&) const;
 extern template Tensor<double> Archive::tensor<double>(const std::string&) const;
-
-// Writes `size` bytes to `path` atomically: they go to "<path>.tmp-<pid>" in the same folder,
-// are flushed and fsync'ed, then renamed over `path`; the folder is then fsync'ed (best
-// effort). On any failure the temporary file is removed, an existing file at `path` is left
-// as it was, and kIo "<path>: <what>: <strerror>" is raised. Two threads of one process must
-// not write the same path at the same time (they would share the temporary name). Every file
-// spar writes goes through here: checkpoints, pictures, plots, logs rewritten on resume.
-void write_file_atomically(const std::string& path, const void* data, size_t size);
-// The same for bytes that `produce` hands to its sink piece by piece, in order, so that a
-// large file (a checkpoint) is never held in memory whole.
-using ByteSink = std::function<void(const void*, size_t)>;
-void write_file_atomically(const std::string& path,
-                           const std::function<void(const ByteSink&)>& produce);
 
 // True when `s` is well-formed UTF-8 (RFC 3629: no overlong forms, surrogates or values past
 // U+10FFFF), the rule for an archive's names and texts.

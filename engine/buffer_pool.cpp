@@ -1,10 +1,10 @@
 #include "engine/buffer_pool.h"
 
-#include <cassert>
 #include <mutex>
 #include <new>
 #include <vector>
 
+#include "engine/check.h"
 #include "engine/error.h"
 
 namespace spar {
@@ -70,7 +70,7 @@ void pool_release_cached() {
 PoolLimit::PoolLimit(int64_t bytes, ErrorKind kind, std::string message) {
   Pool& p = pool();
   std::lock_guard<std::mutex> lock(p.mutex);
-  assert(!p.limited && "one PoolLimit at a time");
+  SPAR_ASSERT(!p.limited, "PoolLimit: one at a time");
   p.limited = true;
   p.limit_in_use = p.stats.bytes_in_use + bytes;
   p.limit_kind = kind;

@@ -89,7 +89,9 @@ GradientCheckResult check_second_order(const GradientCase& c, const GradientChec
     Tape<double> tape;
     std::vector<Var<double>> vars;
     for (const Tensor<double>& x : c.inputs) vars.push_back(tape.variable(x));
-    std::vector<Var<double>> g = tape.gradient(c.function(vars), vars, GradientOptions{true});
+    GradientOptions recorded;
+    recorded.record = true;  // the backward pass is differentiated again below
+    std::vector<Var<double>> g = tape.gradient(c.function(vars), vars, recorded);
     Var<double> s;
     for (size_t i = 0; i < g.size(); ++i) {
       Var<double> term = sum(multiply(g[i], Var<double>(v[i])));

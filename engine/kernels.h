@@ -53,6 +53,14 @@ Tensor<T> leaky_relu_adjoint(const Tensor<T>& g, const Tensor<T>& x, double slop
 template <class T>
 Tensor<T> tanh_adjoint(const Tensor<T>& g, const Tensor<T>& y);
 
+// wa·a + wb·b elementwise, for a and b of one shape (raises kBadShape otherwise), with the
+// weights rounded to T first: the same two products and one sum, rounded in the same order,
+// as binary(kAdd, scale(a, wa), scale(b, wb)), so bit-identical to it, in one pass
+// (kernels_blend.cpp, compiled without contraction into fused multiply-adds). For running
+// averages: batch statistics, a generator's weight average.
+template <class T>
+Tensor<T> blend(const Tensor<T>& a, double wa, const Tensor<T>& b, double wb);
+
 enum class Binary { kAdd, kSubtract, kMultiply, kDivide };
 // Elementwise with numpy broadcasting; `op` names the operation in shape errors.
 template <class T>

@@ -1,9 +1,10 @@
 // The differentiable operations on Var<T>.
 //
 // Each operation computes its value with a kernel (kernels.h) and, when recorded, stores
-// what its adjoint needs (tape.h). Every adjoint is written with these same operations,
-// so gradients can be differentiated again. Each operation's forward and adjoint stand
-// together in one place: ops_elementwise.cpp, ops_shape.cpp, ops_reduce.cpp.
+// what its adjoint needs in a tape node (tape.h; the nodes are in tape_detail.h). Every
+// adjoint is written with these same operations, so gradients can be differentiated again.
+// Each operation's forward and adjoint stand together in one place: ops_elementwise.cpp,
+// ops_shape.cpp, ops_reduce.cpp, ops_conv.cpp and ops_norm.cpp.
 // Composite operations (mean, softmax, the cross-entropies) are built from the others and
 // need no adjoint of their own.
 //
@@ -14,7 +15,7 @@
 
 #include <vector>
 
-#include "engine/kernels.h"
+#include "engine/conv_geometry.h"
 #include "engine/tape.h"
 
 namespace spar {
@@ -82,7 +83,8 @@ Var<T> broadcast_to(const Var<T>& x, const Shape& shape);
 template <class T>
 Var<T> sum_into_shape(const Var<T>& x, const Shape& shape);  // adjoint of broadcast_to
 
-// ---- 2-D convolutions, NCHW (ops_conv.cpp; ConvGeometry and the formulas in kernels.h) ----
+// ---- 2-D convolutions, NCHW (ops_conv.cpp) ----
+// ConvGeometry and the output-size rule are in conv_geometry.h, the formulas in kernels.h.
 // x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW] (cross-correlation with stride and zero padding).
 template <class T>
 Var<T> convolution(const Var<T>& x, const Var<T>& w, const ConvGeometry& g);

@@ -12,22 +12,18 @@ namespace {
 
 using detail::input;
 
-// OpArgs::ints holds stride_h, stride_w, pad_h, pad_w and two extents (an output size for
-// transposed_convolution, a kernel size for convolution_weight_gradient).
-OpArgs conv_args(const ConvGeometry& g, int64_t a = 0, int64_t b = 0) {
-  OpArgs args;
-  args.ints = {g.stride_h, g.stride_w, g.pad_h, g.pad_w, a, b};
+// A node keeps its geometry; the extents an adjoint needs are those of its operands.
+detail::OpArgs conv_args(const ConvGeometry& g) {
+  detail::OpArgs args;
+  args.conv = g;
   return args;
-}
-ConvGeometry geometry_of(const OpArgs& a) {
-  return {a.ints[0], a.ints[1], a.ints[2], a.ints[3]};
 }
 
 // y = convolution(x, w)
 SPAR_ADJOINT(conv2d_adjoint) {
   const Var<T>& x = input(n, 0);
   const Var<T>& w = input(n, 1);
-  const ConvGeometry geo = geometry_of(n.args);
+  const ConvGeometry geo = n.args.conv;
   if (needs[0]) gi[0] = transposed_convolution(g, w, geo, x.shape()[2], x.shape()[3]);
   if (needs[1]) gi[1] = convolution_weight_gradient(x, g, geo, w.shape()[2], w.shape()[3]);
 }
@@ -36,7 +32,7 @@ SPAR_ADJOINT(conv2d_adjoint) {
 SPAR_ADJOINT(conv2d_transpose_adjoint) {
   const Var<T>& z = input(n, 0);
   const Var<T>& w = input(n, 1);
-  const ConvGeometry geo = geometry_of(n.args);
+  const ConvGeometry geo = n.args.conv;
   if (needs[0]) gi[0] = convolution(g, w, geo);
   if (needs[1]) gi[1] = convolution_weight_gradient(g, z, geo, w.shape()[2], w.shape()[3]);
 }
@@ -44,7 +40,7 @@ SPAR_ADJOINT(conv2d_transpose_adjoint) {
 SPAR_ADJOINT(conv2d_weight_gradient_adjoint) {
   const Var<T>& x = input(n, 0);
   const Var<T>& dy = input(n, 1);
-  const ConvGeometry geo = geometry_of(n.args);
+  const ConvGeometry geo = n.args.conv;
   if (needs[0]) gi[0] = transposed_convolution(dy, g, geo, x.shape()[2], x.shape()[3]);
   if (needs[1]) gi[1] = convolution(x, g, geo);
 }
@@ -53,25 +49,25 @@ SPAR_ADJOINT(conv2d_weight_gradient_adjoint) {
 
 template <class T>
 Var<T> convolution(const Var<T>& x, const Var<T>& w, const ConvGeometry& g) {
-  return record<T>("convolution", conv2d_adjoint<T>, {x, w},
-                   kernels::convolution(x.value(), w.value(), g), conv_args(g));
+  return detail::record<T>("convolution", conv2d_adjoint<T>, {x, w},
+                           kernels::convolution(x.value(), w.value(), g), conv_args(g));
 }
 
 template <class T>
 Var<T> transposed_convolution(const Var<T>& z, const Var<T>& w, const ConvGeometry& g,
                               int64_t out_h, int64_t out_w) {
-  return record<T>("transposed_convolution", conv2d_transpose_adjoint<T>, {z, w},
-                   kernels::transposed_convolution(z.value(), w.value(), g, out_h, out_w),
-                   conv_args(g, out_h, out_w));
+  return detail::record<T>("transposed_convolution", conv2d_transpose_adjoint<T>, {z, w},
+                           kernels::transposed_convolution(z.value(), w.value(), g, out_h, out_w),
+                           conv_args(g));
 }
 
 template <class T>
 Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
                                    int64_t kernel_h, int64_t kernel_w) {
-  return record<T>(
+  return detail::record<T>(
       "convolution_weight_gradient", conv2d_weight_gradient_adjoint<T>, {x, dy},
       kernels::convolution_weight_gradient(x.value(), dy.value(), g, kernel_h, kernel_w),
-      conv_args(g, kernel_h, kernel_w));
+      conv_args(g));
 }
 
 #define SPAR_INSTANTIATE(T)                                                                      \

@@ -3,7 +3,9 @@
 
 #include <vector>
 
+#include "engine/check.h"
 #include "engine/ops.h"
+#include "engine/tape_detail.h"
 
 namespace spar {
 namespace detail {
@@ -15,6 +17,8 @@ Var<T> constant(Tensor<T> t) {
 
 template <class T>
 const Var<T>& input(const Node<T>& n, int k) {
+  SPAR_ASSERT(k >= 0 && static_cast<size_t>(k) < n.inputs.size(),
+              "input: the node has no such input");
   return n.inputs[k];
 }
 

@@ -95,30 +95,30 @@ SPAR_ADJOINT(add_scalar_adjoint) {
 
 template <class T>
 Var<T> unary_op(const char* name, detail::AdjointFn<T> adjoint, Unary f, const Var<T>& x) {
-  return record<T>(name, adjoint, {x}, kernels::unary(f, x.value()));
+  return detail::record<T>(name, adjoint, {x}, kernels::unary(f, x.value()));
 }
 
 }  // namespace
 
 template <class T>
 Var<T> add(const Var<T>& a, const Var<T>& b) {
-  return record<T>("add", add_adjoint<T>, {a, b},
-                   kernels::binary(Binary::kAdd, a.value(), b.value(), "add"));
+  return detail::record<T>("add", add_adjoint<T>, {a, b},
+                           kernels::binary(Binary::kAdd, a.value(), b.value(), "add"));
 }
 template <class T>
 Var<T> subtract(const Var<T>& a, const Var<T>& b) {
-  return record<T>("subtract", subtract_adjoint<T>, {a, b},
-                   kernels::binary(Binary::kSubtract, a.value(), b.value(), "subtract"));
+  return detail::record<T>("subtract", subtract_adjoint<T>, {a, b},
+                           kernels::binary(Binary::kSubtract, a.value(), b.value(), "subtract"));
 }
 template <class T>
 Var<T> multiply(const Var<T>& a, const Var<T>& b) {
-  return record<T>("multiply", multiply_adjoint<T>, {a, b},
-                   kernels::binary(Binary::kMultiply, a.value(), b.value(), "multiply"));
+  return detail::record<T>("multiply", multiply_adjoint<T>, {a, b},
+                           kernels::binary(Binary::kMultiply, a.value(), b.value(), "multiply"));
 }
 template <class T>
 Var<T> divide(const Var<T>& a, const Var<T>& b) {
-  return record<T>("divide", divide_adjoint<T>, {a, b},
-                   kernels::binary(Binary::kDivide, a.value(), b.value(), "divide"));
+  return detail::record<T>("divide", divide_adjoint<T>, {a, b},
+                           kernels::binary(Binary::kDivide, a.value(), b.value(), "divide"));
 }
 
 template <class T>
@@ -167,23 +167,23 @@ Var<T> log_sigmoid(const Var<T>& x) {
 }
 template <class T>
 Var<T> power(const Var<T>& x, double p) {
-  return record<T>("power", power_adjoint<T>, {x}, kernels::power(x.value(), p),
-                   detail::scalar_args(p));
+  return detail::record<T>("power", power_adjoint<T>, {x}, kernels::power(x.value(), p),
+                           detail::scalar_args(p));
 }
 template <class T>
 Var<T> leaky_relu(const Var<T>& x, double slope) {
-  return record<T>("leaky_relu", leaky_relu_adjoint<T>, {x}, kernels::leaky_relu(x.value(), slope),
-                   detail::scalar_args(slope));
+  return detail::record<T>("leaky_relu", leaky_relu_adjoint<T>, {x},
+                           kernels::leaky_relu(x.value(), slope), detail::scalar_args(slope));
 }
 template <class T>
 Var<T> scale(const Var<T>& x, double c) {
-  return record<T>("scale", scale_adjoint<T>, {x}, kernels::scale(x.value(), c),
-                   detail::scalar_args(c));
+  return detail::record<T>("scale", scale_adjoint<T>, {x}, kernels::scale(x.value(), c),
+                           detail::scalar_args(c));
 }
 template <class T>
 Var<T> add_scalar(const Var<T>& x, double c) {
-  return record<T>("add_scalar", add_scalar_adjoint<T>, {x}, kernels::add_scalar(x.value(), c),
-                   detail::scalar_args(c));
+  return detail::record<T>("add_scalar", add_scalar_adjoint<T>, {x},
+                           kernels::add_scalar(x.value(), c), detail::scalar_args(c));
 }
 
 #define SPAR_INSTANTIATE(T)                               \

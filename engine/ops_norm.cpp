@@ -51,8 +51,8 @@ Var<T> batch_normalise(const Var<T>& x, const Var<T>& gamma, const Var<T>& beta,
   Tensor<T> st = kernels::channel_statistics(x.value());
   Tensor<T> y = kernels::normalise_channels(x.value(), st, gamma.value(), beta.value(), epsilon);
   if (statistics) *statistics = st;
-  return record<T>("batch_normalise", batch_normalise_adjoint<T>, {x, gamma, beta}, std::move(y),
-                   detail::scalar_args(epsilon), std::move(st));
+  return detail::record<T>("batch_normalise", batch_normalise_adjoint<T>, {x, gamma, beta},
+                           std::move(y), detail::scalar_args(epsilon), std::move(st));
 }
 
 #define SPAR_INSTANTIATE(T) \

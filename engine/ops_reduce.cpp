@@ -50,19 +50,20 @@ Var<T> max(const Var<T>& x, int axis, bool keep_axis) {
   axis = x.shape().normalise_axis(axis, "max");
   Tensor<T> first_max;
   Tensor<T> value = kernels::max_along(x.value(), axis, &first_max);
-  OpArgs args;
+  detail::OpArgs args;
   args.axis = axis;
-  Var<T> y = record<T>("max", max_adjoint<T>, {x}, std::move(value), args, std::move(first_max));
+  Var<T> y =
+      detail::record<T>("max", max_adjoint<T>, {x}, std::move(value), args, std::move(first_max));
   return drop_axis_unless(y, axis, keep_axis);
 }
 
 template <class T>
 Var<T> log_sum_exp(const Var<T>& x, int axis, bool keep_axis) {
   axis = x.shape().normalise_axis(axis, "log_sum_exp");
-  OpArgs args;
+  detail::OpArgs args;
   args.axis = axis;
-  Var<T> y = record<T>("log_sum_exp", log_sum_exp_adjoint<T>, {x},
-                       kernels::log_sum_exp_along(x.value(), axis), args);
+  Var<T> y = detail::record<T>("log_sum_exp", log_sum_exp_adjoint<T>, {x},
+                               kernels::log_sum_exp_along(x.value(), axis), args);
   return drop_axis_unless(y, axis, keep_axis);
 }
 

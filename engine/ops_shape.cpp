@@ -64,8 +64,8 @@ SPAR_ADJOINT(sum_to_adjoint) {
   gi[0] = broadcast_to(g, input(n, 0).shape());
 }
 
-OpArgs axis_args(int axis, int64_t begin = 0, int64_t end = 0) {
-  OpArgs a;
+detail::OpArgs axis_args(int axis, int64_t begin = 0, int64_t end = 0) {
+  detail::OpArgs a;
   a.axis = axis;
   a.begin = begin;
   a.end = end;
@@ -76,11 +76,12 @@ OpArgs axis_args(int axis, int64_t begin = 0, int64_t end = 0) {
 
 template <class T>
 Var<T> matmul(const Var<T>& a, const Var<T>& b, bool transpose_a, bool transpose_b) {
-  OpArgs args;
+  detail::OpArgs args;
   args.flag_a = transpose_a;
   args.flag_b = transpose_b;
-  return record<T>("matmul", matmul_adjoint<T>, {a, b},
-                   kernels::matrix_product(a.value(), b.value(), transpose_a, transpose_b), args);
+  return detail::record<T>("matmul", matmul_adjoint<T>, {a, b},
+                           kernels::matrix_product(a.value(), b.value(), transpose_a, transpose_b),
+                           args);
 }
 
 template <class T>
@@ -93,14 +94,14 @@ Var<T> transpose(const Var<T>& x) {
 template <class T>
 Var<T> permute(const Var<T>& x, const std::vector<int>& perm) {
   Tensor<T> value = kernels::permute(x.value(), perm);  // validates perm
-  OpArgs args;
+  detail::OpArgs args;
   for (size_t i = 0; i < perm.size(); ++i) args.perm[i] = static_cast<int8_t>(perm[i]);
-  return record<T>("permute", permute_adjoint<T>, {x}, std::move(value), args);
+  return detail::record<T>("permute", permute_adjoint<T>, {x}, std::move(value), args);
 }
 
 template <class T>
 Var<T> reshape(const Var<T>& x, const Shape& shape) {
-  return record<T>("reshape", reshape_adjoint<T>, {x}, x.value().reshape(shape));
+  return detail::record<T>("reshape", reshape_adjoint<T>, {x}, x.value().reshape(shape));
 }
 
 template <class T>
@@ -109,36 +110,36 @@ Var<T> concat(const std::vector<Var<T>>& xs, int axis) {
   values.reserve(xs.size());
   for (const Var<T>& x : xs) values.push_back(x.value());
   Tensor<T> value = kernels::concatenate(values, axis);
-  return record<T>("concat", concat_adjoint<T>, xs, std::move(value),
-                   axis_args(value.shape().normalise_axis(axis, "concat")));
+  return detail::record<T>("concat", concat_adjoint<T>, xs, std::move(value),
+                           axis_args(value.shape().normalise_axis(axis, "concat")));
 }
 
 template <class T>
 Var<T> slice(const Var<T>& x, int axis, int64_t begin, int64_t end) {
   Tensor<T> value = kernels::slice(x.value(), axis, begin, end);
-  return record<T>("slice", slice_adjoint<T>, {x}, std::move(value),
-                   axis_args(x.shape().normalise_axis(axis, "slice"), begin, end));
+  return detail::record<T>("slice", slice_adjoint<T>, {x}, std::move(value),
+                           axis_args(x.shape().normalise_axis(axis, "slice"), begin, end));
 }
 
 template <class T>
 Var<T> pad(const Var<T>& x, int axis, int64_t before, int64_t after) {
   Tensor<T> value = kernels::pad(x.value(), axis, before, after);
-  return record<T>("pad", pad_adjoint<T>, {x}, std::move(value),
-                   axis_args(x.shape().normalise_axis(axis, "pad"), before, after));
+  return detail::record<T>("pad", pad_adjoint<T>, {x}, std::move(value),
+                           axis_args(x.shape().normalise_axis(axis, "pad"), before, after));
 }
 
 template <class T>
 Var<T> broadcast_to(const Var<T>& x, const Shape& shape) {
   if (x.shape() == shape) return x;
-  return record<T>("broadcast_to", broadcast_to_adjoint<T>, {x},
-                   kernels::broadcast_to(x.value(), shape));
+  return detail::record<T>("broadcast_to", broadcast_to_adjoint<T>, {x},
+                           kernels::broadcast_to(x.value(), shape));
 }
 
 template <class T>
 Var<T> sum_into_shape(const Var<T>& x, const Shape& shape) {
   if (x.shape() == shape) return x;
-  return record<T>("sum_into_shape", sum_to_adjoint<T>, {x},
-                   kernels::sum_into_shape(x.value(), shape));
+  return detail::record<T>("sum_into_shape", sum_to_adjoint<T>, {x},
+                           kernels::sum_into_shape(x.value(), shape));
 }
 
 #define SPAR_INSTANTIATE(T)                                         \

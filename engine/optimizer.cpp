@@ -87,13 +87,12 @@ struct RmsPropRun {
 template <class T>
 Optimizer<T>::Optimizer(double learning_rate, const char* method) : method_(method) {
   detail::check_non_negative(method_, "learning_rate", learning_rate);
-  learning_rate_ = learning_rate;
 }
 
 template <class T>
 void Optimizer<T>::set_learning_rate(double learning_rate) {
   detail::check_non_negative(method_, "learning_rate", learning_rate);
-  learning_rate_ = learning_rate;
+  assign_learning_rate(learning_rate);
 }
 
 template <class T>
@@ -150,7 +149,7 @@ template <class T>
 void Optimizer<T>::save_common(Archive& archive, const std::string& prefix, int64_t count) const {
   archive.put_text(prefix + "/method", method_);
   archive.put_int(prefix + "/steps", steps_);
-  archive.put(prefix + "/learning_rate", Tensor<double>::scalar(learning_rate_));
+  archive.put(prefix + "/learning_rate", Tensor<double>::scalar(learning_rate()));
   archive.put_int(prefix + "/parameters", count);
 }
 
@@ -220,7 +219,7 @@ void Adam<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<Tens
   this->init_state(v_, grads);
 
   const double t = static_cast<double>(this->steps_ + 1);
-  const double lr = this->learning_rate_;
+  const double lr = options_.learning_rate;
   AdamRun<T> run;
   run.beta1 = static_cast<T>(options_.beta1);
   run.keep1 = static_cast<T>(1 - options_.beta1);
@@ -270,7 +269,8 @@ void MomentumSgd<T>::step(const std::vector<Tensor<T>*>& params,
                           const std::vector<Tensor<T>>& grads) {
   this->check_lists(params, grads, velocity_);
   this->init_state(velocity_, grads);
-  const MomentumRun<T> run{static_cast<T>(options_.momentum), static_cast<T>(this->learning_rate_)};
+  const MomentumRun<T> run{static_cast<T>(options_.momentum),
+                           static_cast<T>(options_.learning_rate)};
   this->replace_each(params, [&](size_t i, int64_t begin, int64_t end, T* out) {
     run(grads[i].data() + begin, params[i]->data() + begin, velocity_[i].mutable_data() + begin,
         out + begin, end - begin);
@@ -306,7 +306,7 @@ void RmsProp<T>::step(const std::vector<Tensor<T>*>& params, const std::vector<T
   this->check_lists(params, grads, mean_square_);
   this->init_state(mean_square_, grads);
   const RmsPropRun<T> run{static_cast<T>(options_.decay), static_cast<T>(1 - options_.decay),
-                          static_cast<T>(this->learning_rate_), static_cast<T>(options_.epsilon)};
+                          static_cast<T>(options_.learning_rate), static_cast<T>(options_.epsilon)};
   this->replace_each(params, [&](size_t i, int64_t begin, int64_t end, T* out) {
     run(grads[i].data() + begin, params[i]->data() + begin, mean_square_[i].mutable_data() + begin,
         out + begin, end - begin);

@@ -47,12 +47,17 @@ class Optimizer {
   virtual void load(const Archive& archive, const std::string& prefix) = 0;
 
   int64_t steps_taken() const { return steps_; }  // completed step() calls, 0 at first
-  double learning_rate() const { return learning_rate_; }
+  // The step size of the next step. It has one home, the method's options (options() of
+  // Adam, MomentumSgd, RmsProp), which set_learning_rate and load change.
+  virtual double learning_rate() const = 0;
   // Takes effect at the next step; raises kBadArgument unless finite and >= 0.
   void set_learning_rate(double learning_rate);
 
  protected:
+  // Checks the learning rate of the method's options (raises kBadArgument naming the method).
   Optimizer(double learning_rate, const char* method);
+  // Stores a checked learning rate in the method's options.
+  virtual void assign_learning_rate(double learning_rate) = 0;
 
   // Checks the lists against each other and against `state` (one tensor per parameter,
   // empty before the first step); raises kBadShape as described at step().
@@ -79,7 +84,7 @@ class Optimizer {
   Common read_common(const Archive& archive, const std::string& prefix) const;
   void commit_common(const Common& common) {
     steps_ = common.steps;
-    learning_rate_ = common.learning_rate;
+    assign_learning_rate(common.learning_rate);
   }
   static void save_list(Archive& archive, const std::string& name,
                         const std::vector<Tensor<T>>& list);
@@ -88,7 +93,6 @@ class Optimizer {
                                           int64_t count, const std::vector<Tensor<T>>* like);
 
   int64_t steps_ = 0;
-  double learning_rate_;
   const char* method_;  // the name written to "<prefix>/method", e.g. "adam"
 };
 
@@ -123,9 +127,14 @@ class Adam final : public Optimizer<T> {
   void step(const std::vector<Tensor<T>*>& params, const std::vector<Tensor<T>>& grads) override;
   void save(Archive& archive, const std::string& prefix) const override;
   void load(const Archive& archive, const std::string& prefix) override;
+  // As constructed, with the learning rate of the latest set_learning_rate or load.
   const AdamOptions& options() const { return options_; }
+  double learning_rate() const override { return options_.learning_rate; }
 
  private:
+  void assign_learning_rate(double learning_rate) override {
+    options_.learning_rate = learning_rate;
+  }
   AdamOptions options_;
   std::vector<Tensor<T>> m_, v_;  // first and second moments, one per parameter
 };
@@ -148,9 +157,14 @@ class MomentumSgd final : public Optimizer<T> {
   void step(const std::vector<Tensor<T>*>& params, const std::vector<Tensor<T>>& grads) override;
   void save(Archive& archive, const std::string& prefix) const override;
   void load(const Archive& archive, const std::string& prefix) override;
+  // As constructed, with the learning rate of the latest set_learning_rate or load.
   const MomentumSgdOptions& options() const { return options_; }
+  double learning_rate() const override { return options_.learning_rate; }
 
  private:
+  void assign_learning_rate(double learning_rate) override {
+    options_.learning_rate = learning_rate;
+  }
   MomentumSgdOptions options_;
   std::vector<Tensor<T>> velocity_;
 };
@@ -175,9 +189,14 @@ class RmsProp final : public Optimizer<T> {
   void step(const std::vector<Tensor<T>*>& params, const std::vector<Tensor<T>>& grads) override;
   void save(Archive& archive, const std::string& prefix) const override;
   void load(const Archive& archive, const std::string& prefix) override;
+  // As constructed, with the learning rate of the latest set_learning_rate or load.
   const RmsPropOptions& options() const { return options_; }
+  double learning_rate() const override { return options_.learning_rate; }
 
  private:
+  void assign_learning_rate(double learning_rate) override {
+    options_.learning_rate = learning_rate;
+  }
   RmsPropOptions options_;
   std::vector<Tensor<T>> mean_square_;  // s, one per parameter
 };

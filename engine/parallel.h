@@ -3,11 +3,12 @@
 // spar owns all threading. Kernels parallelise with OpenMP over fixed chunks whose size
 // depends only on the tensor shapes, never on the thread count, so every result is
 // bit-identical with 1, 2 or more threads. Eigen's own GEMM threading is switched off
-// (the matrix-product kernel sets Eigen::setNbThreads(1) on first use): spar splits each matrix
-// product into fixed panels itself, so there is exactly one level of parallelism per kernel and no
-// oversubscription. docs/threading.md says which operations run in parallel.
+// (every kernel that runs a GEMM first calls detail::ensure_eigen_single_threaded, below, which
+// sets Eigen::setNbThreads(1) once): spar splits each matrix product into fixed panels itself, so
+// there is exactly one level of parallelism per kernel and no oversubscription. docs/threading.md
+// says which operations run in parallel.
 //
-// Thread safety: set_threads() changes a process-wide setting; call it between steps, not
+// Thread safety: set_thread_count() changes a process-wide setting; call it between steps, not
 // while kernels run.
 #pragma once
 

@@ -45,6 +45,7 @@ int64_t Shape::element_count() const {
 }
 
 Shape Shape::without(int axis) const {
+  SPAR_ASSERT(axis >= 0 && axis < rank_, "Shape::without: axis out of range");
   Shape s;
   for (int i = 0; i < rank_; ++i)
     if (i != axis) s.push_back(dims_[i]);
@@ -52,6 +53,7 @@ Shape Shape::without(int axis) const {
 }
 
 Shape Shape::with(int axis, int64_t extent) const {
+  SPAR_ASSERT(axis >= 0 && axis < rank_, "Shape::with: axis out of range");
   Shape s;
   for (int i = 0; i < rank_; ++i) s.push_back(i == axis ? extent : dims_[i]);
   return s;

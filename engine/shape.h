@@ -14,6 +14,8 @@
 #include <initializer_list>
 #include <string>
 
+#include "engine/check.h"
+
 namespace spar {
 
 constexpr int kMaxRank = 6;
@@ -37,7 +39,11 @@ class Shape {
   }
 
   int rank() const { return rank_; }
-  int64_t operator[](int axis) const { return dims_[axis]; }
+  // The extent of axis 0..rank-1 (SPAR_ASSERT, check.h; normalise_axis for axes from outside).
+  int64_t operator[](int axis) const {
+    SPAR_ASSERT(axis >= 0 && axis < rank_, "Shape: axis out of range");
+    return dims_[axis];
+  }
   int64_t element_count() const;
   const int64_t* begin() const { return dims_.data(); }
   const int64_t* end() const { return dims_.data() + rank_; }
@@ -46,8 +52,8 @@ class Shape {
   // kMaxElements.
   void push_back(int64_t extent);
 
-  // The same shape with `axis` removed, or with its extent set to `extent` (checked as
-  // push_back checks).
+  // The same shape with `axis` (0..rank-1) removed, or with its extent set to `extent`
+  // (checked as push_back checks).
   Shape without(int axis) const;
   Shape with(int axis, int64_t extent) const;
 

@@ -5,6 +5,7 @@
 
 #include "engine/error.h"
 #include "engine/ops.h"
+#include "engine/tape_detail.h"
 
 namespace spar {
 namespace {
@@ -34,31 +35,48 @@ void Tape<T>::check_current(const Var<T>& v, const char* op) const {
 }
 
 template <class T>
+const detail::Node<T>& Tape<T>::node(int64_t id) const {
+  SPAR_ASSERT(id >= 0 && id < size_, "Tape: node id outside the current generation");
+  return chunks_[id >> kChunkBits][id & kChunkMask];
+}
+
+template <class T>
+detail::Node<T>& Tape<T>::mutable_node(int64_t id) {
+  SPAR_ASSERT(id >= 0 && id < size_, "Tape: node id outside the current generation");
+  return chunks_[id >> kChunkBits][id & kChunkMask];
+}
+
+template <class T>
 Var<T> Tape<T>::output_of(int64_t id) const {
   return Var<T>(node(id).value, const_cast<Tape<T>*>(this), static_cast<int32_t>(id), generation_);
 }
 
+namespace detail {
 template <class T>
-Var<T> Tape<T>::append(const char* op, detail::AdjointFn<T> adjoint, std::vector<Var<T>>&& inputs,
-                       Tensor<T> value, const OpArgs& args, Tensor<T> saved) {
-  if (size_ >= (int64_t{1} << 31) - 1)
+Var<T> TapeAccess<T>::append(Tape<T>& tape, const char* op, AdjointFn<T> adjoint,
+                             std::vector<Var<T>>&& inputs, Tensor<T> value, const OpArgs& args,
+                             Tensor<T> saved) {
+  if (tape.size_ >= (int64_t{1} << 31) - 1)
     raise(ErrorKind::kBadArgument, std::string(op) + ": tape is full");
-  if ((size_ >> kChunkBits) == static_cast<int64_t>(chunks_.size()))
-    chunks_.emplace_back(new detail::Node<T>[size_t{1} << kChunkBits]);
-  detail::Node<T>& n = mutable_node(size_);
+  if ((tape.size_ >> Tape<T>::kChunkBits) == static_cast<int64_t>(tape.chunks_.size()))
+    tape.chunks_.emplace_back(new Node<T>[size_t{1} << Tape<T>::kChunkBits]);
+  const int64_t id = tape.size_++;
+  Node<T>& n = tape.mutable_node(id);
   n.op = op;
   n.adjoint = adjoint;
   n.inputs.swap(inputs);  // the node's old (cleared) vector goes back to the caller: no churn
   n.value = std::move(value);
   n.saved = std::move(saved);
   n.args = args;
-  return output_of(size_++);
+  return tape.output_of(id);
 }
+}  // namespace detail
 
 template <class T>
 Var<T> Tape<T>::variable(const Tensor<T>& value) {
   if (!value.defined()) raise(ErrorKind::kBadArgument, "variable: the tensor is undefined");
-  return append("variable", nullptr, {}, value, OpArgs{}, Tensor<T>{});
+  return detail::TapeAccess<T>::append(*this, "variable", nullptr, {}, value, detail::OpArgs{},
+                                       Tensor<T>{});
 }
 
 template <class T>
@@ -164,9 +182,10 @@ std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y,
   return result;
 }
 
+namespace detail {
 template <class T>
-Var<T> record(const char* op, detail::AdjointFn<T> adjoint, std::vector<Var<T>> inputs,
-              Tensor<T> value, const OpArgs& args, Tensor<T> saved) {
+Var<T> record(const char* op, AdjointFn<T> adjoint, std::vector<Var<T>> inputs, Tensor<T> value,
+              const OpArgs& args, Tensor<T> saved) {
   Tape<T>* tape = nullptr;
   for (const Var<T>& in : inputs) {
     if (!in.defined())
@@ -176,17 +195,22 @@ Var<T> record(const char* op, detail::AdjointFn<T> adjoint, std::vector<Var<T>> 
       raise(ErrorKind::kBadArgument,
             std::string(op) + ": operands are recorded on different tapes");
     tape = in.tape();
-    tape->check_current(in, op);
+    TapeAccess<T>::check_current(*tape, in, op);
   }
   if (!tape || !recording_enabled()) return Var<T>(std::move(value));
-  return tape->append(op, adjoint, std::move(inputs), std::move(value), args, std::move(saved));
+  return TapeAccess<T>::append(*tape, op, adjoint, std::move(inputs), std::move(value), args,
+                               std::move(saved));
 }
+
+template struct TapeAccess<float>;
+template struct TapeAccess<double>;
+template Var<float> record(const char*, AdjointFn<float>, std::vector<Var<float>>, Tensor<float>,
+                           const OpArgs&, Tensor<float>);
+template Var<double> record(const char*, AdjointFn<double>, std::vector<Var<double>>,
+                            Tensor<double>, const OpArgs&, Tensor<double>);
+}  // namespace detail
 
 template class Tape<float>;
 template class Tape<double>;
-template Var<float> record(const char*, detail::AdjointFn<float>, std::vector<Var<float>>,
-                           Tensor<float>, const OpArgs&, Tensor<float>);
-template Var<double> record(const char*, detail::AdjointFn<double>, std::vector<Var<double>>,
-                            Tensor<double>, const OpArgs&, Tensor<double>);
 
 }  // namespace spar

@@ -35,7 +35,6 @@
 //     since they differentiate the recorded path against differences of the fused one.
 #pragma once
 
-#include <array>
 #include <cstdint>
 #include <memory>
 #include <vector>
@@ -85,35 +84,13 @@ class NoRecordScope {
 };
 bool recording_enabled();
 
-// Parameters an operation keeps for its adjoint. Each op uses the fields it documents.
-struct OpArgs {
-  double scalar = 0;
-  int axis = 0;
-  int64_t begin = 0, end = 0;
-  bool flag_a = false, flag_b = false;
-  Shape shape;
-  std::array<int8_t, kMaxRank> perm{};
-  std::array<int64_t, 6> ints{};  // further integer parameters (a convolution's geometry)
-};
-
 namespace detail {
+// The recorded nodes and the functions the operations record them with (tape_detail.h, for
+// the engine's .cpp files only).
 template <class T>
 struct Node;
-// Computes the adjoints of a node's inputs from the adjoint of its output. `out` is the
-// node's output as a recorded Var; grad_in[k] is set only where needs[k] is true.
 template <class T>
-using AdjointFn = void (*)(const Node<T>& node, const Var<T>& out, const Var<T>& grad_out,
-                           const std::vector<bool>& needs, std::vector<Var<T>>& grad_in);
-
-template <class T>
-struct Node {
-  const char* op = nullptr;        // the operation's name, for messages and verification
-  AdjointFn<T> adjoint = nullptr;  // null for variables (leaves)
-  std::vector<Var<T>> inputs;      // as seen when recorded (recorded or constant)
-  Tensor<T> value;                 // the output
-  Tensor<T> saved;                 // extra tensor an adjoint needs (a mask, say), or none
-  OpArgs args;
-};
+struct TapeAccess;
 }  // namespace detail
 
 struct GradientOptions {
@@ -148,21 +125,16 @@ class Tape {
   void clear();
 
   int64_t size() const { return size_; }  // nodes recorded in this generation
-  const detail::Node<T>& node(int64_t id) const {
-    return chunks_[id >> kChunkBits][id & kChunkMask];
-  }
-
-  // Appends a node (used by the operations in ops*.cpp through record() below).
-  Var<T> append(const char* op, detail::AdjointFn<T> adjoint, std::vector<Var<T>>&& inputs,
-                Tensor<T> value, const OpArgs& args, Tensor<T> saved);
-  // Raises kBadArgument when `v` is from an earlier generation of this tape.
-  void check_current(const Var<T>& v, const char* op) const;
 
  private:
+  friend struct detail::TapeAccess<T>;  // the node-level API of the operations (tape_detail.h)
   static constexpr int kChunkBits = 8;
   static constexpr int64_t kChunkMask = (int64_t{1} << kChunkBits) - 1;
-  detail::Node<T>& mutable_node(int64_t id) { return chunks_[id >> kChunkBits][id & kChunkMask]; }
+  const detail::Node<T>& node(int64_t id) const;
+  detail::Node<T>& mutable_node(int64_t id);
   Var<T> output_of(int64_t id) const;
+  // Raises kBadArgument when `v` is from an earlier generation of this tape.
+  void check_current(const Var<T>& v, const char* op) const;
 
   // Nodes live in fixed-size chunks so references stay valid while the backward pass
   // appends (record mode), and so clear() can keep them for the next generation.
@@ -173,13 +145,6 @@ class Tape {
   std::vector<Var<T>> adjoint_;
   std::vector<char> relevant_;
 };
-
-// Records one operation. Returns a constant Var when no input is recorded or recording is
-// off; otherwise appends a node to the inputs' tape (raising kBadArgument if they are on
-// different tapes or from a cleared generation).
-template <class T>
-Var<T> record(const char* op, detail::AdjointFn<T> adjoint, std::vector<Var<T>> inputs,
-              Tensor<T> value, const OpArgs& args = {}, Tensor<T> saved = {});
 
 extern template class Tape<float>;
 extern template class Tape<double>;

@@ -17,6 +17,7 @@
 #include <vector>
 
 #include "engine/buffer_pool.h"
+#include "engine/check.h"
 #include "engine/shape.h"
 
 namespace spar {
@@ -47,7 +48,10 @@ class Tensor {
   bool defined() const { return block_ != nullptr; }
   const Shape& shape() const { return shape_; }
   int rank() const { return shape_.rank(); }
-  int64_t dim(int axis) const { return shape_[axis]; }
+  int64_t dim(int axis) const {  // axis 0..rank-1 (SPAR_ASSERT, check.h)
+    SPAR_ASSERT(axis >= 0 && axis < rank(), "Tensor::dim: axis out of range");
+    return shape_[axis];
+  }
   int64_t element_count() const { return shape_.element_count(); }
 
   const T* data() const { return data_; }

@@ -3,9 +3,10 @@
 // Thread safety: as for layers (one thread at a time).
 #pragma once
 
+#include "engine/conv_geometry.h"
 #include "layers/init.h"
 #include "layers/layer.h"
-#include "layers/spectral_normalisation.h"
+#include "layers/weight_and_bias.h"
 
 namespace spar {
 

@@ -4,7 +4,7 @@
 
 #include "layers/init.h"
 #include "layers/layer.h"
-#include "layers/spectral_normalisation.h"
+#include "layers/weight_and_bias.h"
 
 namespace spar {
 

@@ -38,13 +38,11 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
     Var<T> y = batch_normalise(x, gamma, beta, options_.epsilon, &batch);
     const double r = ctx.statistics_pass() ? 1.0 : options_.running_rate,
                  unbiased = static_cast<double>(m) / static_cast<double>(m - 1);
-    running_mean_ = kernels::binary(
-        kernels::Binary::kAdd, kernels::scale(running_mean_, 1 - r),
-        kernels::scale(kernels::slice(batch, 0, 0, 1).reshape({channels_}), r), "batch norm");
-    running_variance_ = kernels::binary(
-        kernels::Binary::kAdd, kernels::scale(running_variance_, 1 - r),
-        kernels::scale(kernels::slice(batch, 0, 1, 2).reshape({channels_}), r * unbiased),
-        "batch norm");
+    running_mean_ = kernels::blend(running_mean_, 1 - r,
+                                   kernels::slice(batch, 0, 0, 1).reshape({channels_}), r);
+    running_variance_ =
+        kernels::blend(running_variance_, 1 - r,
+                       kernels::slice(batch, 0, 1, 2).reshape({channels_}), r * unbiased);
     return y;
   }
   // Inference: the running statistics, constants.

@@ -77,21 +77,23 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
   else if (o.image_size == 64)
     doublings = 4, start = 4;
   else
-    raise(ErrorKind::kBadRecipe,
+    raise(ErrorKind::kBadArgument,
           "image size " + std::to_string(o.image_size) + " is not one of 28, 32, 64");
   if (o.channels != 1 && o.channels != 3)
-    raise(ErrorKind::kBadRecipe, "channels " + std::to_string(o.channels) + " is not 1 or 3");
+    raise(ErrorKind::kBadArgument, "channels " + std::to_string(o.channels) + " is not 1 or 3");
   GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent,
                Shape{o.channels, o.image_size, o.image_size}, o.classes};
   ConvOptions up;
   up.kernel_h = up.kernel_w = 4;
-  up.geometry = {2, 2, 1, 1};
+  up.geometry.stride_h = up.geometry.stride_w = 2;
+  up.geometry.pad_h = up.geometry.pad_w = 1;
   up.bias = false;                                 // followed by batch normalisation
   const int64_t top = o.width << (doublings - 1);  // channels of the smallest map
 
   S& g = *pair.generator;
-  g.emplace<Dense<float>>("project", o.latent + o.classes, top * start * start, DenseOptions{false},
-                          rng);
+  DenseOptions project;
+  project.bias = false;  // followed by batch normalisation
+  g.emplace<Dense<float>>("project", o.latent + o.classes, top * start * start, project, rng);
   g.emplace<PerSampleReshape<float>>("map", Shape{top, start, start});
   g.emplace<BatchNormalisation<float>>("norm0", top);
   g.emplace<Nonlinearity<float>>("act0", NonlinearityKind::kRelu);

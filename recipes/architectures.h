@@ -56,7 +56,7 @@ struct DcganPairOptions {
   bool spectral_normalisation = false;  // critic: spectral instead of batch normalisation
   int64_t classes = 0;                  // > 0: class-conditional
 };
-// Raises kBadRecipe for an image size other than 28, 32 or 64, or channels other than 1 or 3.
+// Raises kBadArgument for an image size other than 28, 32 or 64, or channels other than 1 or 3.
 GanPair make_dcgan_pair(const DcganPairOptions& options, Rng& rng);
 
 }  // namespace spar

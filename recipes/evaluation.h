@@ -1,6 +1,6 @@
 // Cheap judgements of a trained generator that need no trained judge of their own.
 //
-// nearest_labels: the class of each generated sample's nearest training sample (Euclidean
+// nearest_training_samples: the class of each generated sample's nearest training sample (Euclidean
 // distance over all values). For a class-conditional generator the share whose nearest
 // training sample has the requested class says whether it follows its labels; for any
 // generator, the counts per class show whether some classes are missing (a sign of mode

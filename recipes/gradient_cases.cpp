@@ -16,15 +16,16 @@ std::vector<GradientCase> objective_gradient_cases() {
   Rng rng(20240613, 1);
   std::vector<GradientCase> cases;
   const D real = rng.uniform<double>({5, 1}, -2, 2), fake = rng.uniform<double>({5, 1}, -2, 2);
-  for (Objective o : {Objective::kMinimax, Objective::kNonSaturating, Objective::kLeastSquares,
-                      Objective::kHinge, Objective::kWasserstein}) {
-    // Hinge has kinks at scores ±1: keep the scores away from them.
-    const D r = o == Objective::kHinge ? rng.uniform<double>({5, 1}, -0.8, 0.8) : real;
-    const D f = o == Objective::kHinge ? rng.uniform<double>({5, 1}, -0.8, 0.8) : fake;
-    cases.push_back({std::string(to_string(o)) + " critic loss",
+  for (const ObjectiveInfo& info : objectives()) {
+    // A loss with kinks (hinge's at scores ±1) gets scores within 0.8 of the kink's size.
+    const Objective o = info.objective;
+    const double k = 0.8 * info.kink;
+    const D r = info.kink > 0 ? rng.uniform<double>({5, 1}, -k, k) : real;
+    const D f = info.kink > 0 ? rng.uniform<double>({5, 1}, -k, k) : fake;
+    cases.push_back({std::string(info.name) + " critic loss",
                      [o](const Vs& x) { return discriminator_loss(o, x[0], x[1]); },
                      {r, f}});
-    cases.push_back({std::string(to_string(o)) + " generator loss",
+    cases.push_back({std::string(info.name) + " generator loss",
                      [o](const Vs& x) { return generator_loss(o, x[0]); },
                      {f}});
   }

@@ -21,12 +21,6 @@ Mixture grid_of_25() {
   return m;
 }
 
-Mixture mixture_by_name(const std::string& name) {
-  if (name == "ring8") return ring_of_8();
-  if (name == "grid25") return grid_of_25();
-  raise(ErrorKind::kBadRecipe, "mixture '" + name + "' is not one of ring8, grid25");
-}
-
 Tensor<float> sample_mixture(const Mixture& mixture, int64_t n, Rng& rng) {
   const Tensor<float> noise = rng.normal<float>({n, 2}, 0.0f, static_cast<float>(mixture.stddev));
   Tensor<float> out = Tensor<float>::uninitialised({n, 2});
@@ -65,6 +59,17 @@ ModeCoverage mode_coverage(const Mixture& mixture, const Tensor<float>& points) 
   c.high_quality_fraction =
       points.dim(0) > 0 ? static_cast<double>(high_quality) / points.dim(0) : 0;
   return c;
+}
+
+MixtureSource::MixtureSource(Mixture mixture, uint64_t seed)
+    : mixture_(std::move(mixture)), rng_(seed, derive_stream(seed, "data")) {}
+
+// One record, "<prefix>.stream.position": where the draws go on (docs/file-formats.md).
+void MixtureSource::save(Archive& archive, const std::string& prefix) const {
+  archive.put_int(prefix + ".stream.position", static_cast<int64_t>(rng_.position()));
+}
+void MixtureSource::load(const Archive& archive, const std::string& prefix) {
+  rng_.set_position(static_cast<uint64_t>(archive.integer(prefix + ".stream.position")));
 }
 
 }  // namespace spar

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "engine/random.h"
+#include "recipes/datasets.h"
 
 namespace spar {
 
@@ -24,8 +25,6 @@ struct Mixture {
 
 Mixture ring_of_8();
 Mixture grid_of_25();
-// "ring8" or "grid25"; raises kBadRecipe naming the unknown name otherwise.
-Mixture mixture_by_name(const std::string& name);
 
 // n points [n, 2]: each picks a mode uniformly, then adds N(0, σ²) noise per coordinate.
 Tensor<float> sample_mixture(const Mixture& mixture, int64_t n, Rng& rng);
@@ -39,5 +38,20 @@ struct ModeCoverage {
 
 // Judges generated points [n, 2] by the protocol above.
 ModeCoverage mode_coverage(const Mixture& mixture, const Tensor<float>& points);
+
+// Endless fresh samples of a mixture, unlabelled, drawn from stream "data" of the run seed.
+class MixtureSource final : public DataSource {
+ public:
+  MixtureSource(Mixture mixture, uint64_t seed);
+  Shape sample_shape() const override { return {2}; }
+  Batch next_batch(int64_t n) override { return {sample_mixture(mixture_, n, rng_), {}}; }
+  void save(Archive& archive, const std::string& prefix) const override;
+  void load(const Archive& archive, const std::string& prefix) override;
+  const Mixture& mixture() const { return mixture_; }
+
+ private:
+  Mixture mixture_;
+  Rng rng_;
+};
 
 }  // namespace spar

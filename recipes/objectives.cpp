@@ -17,70 +17,121 @@ Var<T> squared_norms(const Var<T>& g) {
   return sum(square(reshape(g, {n, g.element_count() / n})), 1);
 }
 
-}  // namespace
-
-const char* to_string(Objective objective) {
-  switch (objective) {
-    case Objective::kMinimax:
-      return "minimax";
-    case Objective::kNonSaturating:
-      return "non-saturating";
-    case Objective::kLeastSquares:
-      return "least-squares";
-    case Objective::kHinge:
-      return "hinge";
-    case Objective::kWasserstein:
-      return "wasserstein";
+// Each objective's losses (objectives.h gives the formulas), on scores already flattened to
+// [N]. log σ(r) = −softplus(−r) and log(1 − σ(f)) = −softplus(f), stable for any logit.
+struct Minimax {
+  template <class T>
+  static Var<T> critic(const Var<T>& r, const Var<T>& f, const LeastSquaresTargets&) {
+    return add(mean(softplus(negate(r))), mean(softplus(f)));
   }
-  return "?";
+  template <class T>
+  static Var<T> generator(const Var<T>& f, const LeastSquaresTargets&) {
+    return negate(mean(softplus(f)));  // E[log(1 − σ(f))]
+  }
+};
+struct NonSaturating {
+  template <class T>
+  static Var<T> critic(const Var<T>& r, const Var<T>& f, const LeastSquaresTargets& t) {
+    return Minimax::critic(r, f, t);
+  }
+  template <class T>
+  static Var<T> generator(const Var<T>& f, const LeastSquaresTargets&) {
+    return mean(softplus(negate(f)));  // −E[log σ(f)]
+  }
+};
+struct LeastSquares {
+  template <class T>
+  static Var<T> critic(const Var<T>& r, const Var<T>& f, const LeastSquaresTargets& t) {
+    return scale(add(mean(square(add_scalar(r, -t.real))), mean(square(add_scalar(f, -t.fake)))),
+                 0.5);
+  }
+  template <class T>
+  static Var<T> generator(const Var<T>& f, const LeastSquaresTargets& t) {
+    return scale(mean(square(add_scalar(f, -t.generator))), 0.5);
+  }
+};
+struct Hinge {
+  template <class T>
+  static Var<T> critic(const Var<T>& r, const Var<T>& f, const LeastSquaresTargets&) {
+    return add(mean(relu(add_scalar(negate(r), 1.0))), mean(relu(add_scalar(f, 1.0))));
+  }
+  template <class T>
+  static Var<T> generator(const Var<T>& f, const LeastSquaresTargets&) {
+    return negate(mean(f));
+  }
+};
+struct Wasserstein {
+  template <class T>
+  static Var<T> critic(const Var<T>& r, const Var<T>& f, const LeastSquaresTargets&) {
+    return subtract(mean(f), mean(r));
+  }
+  template <class T>
+  static Var<T> generator(const Var<T>& f, const LeastSquaresTargets& t) {
+    return Hinge::generator(f, t);
+  }
+};
+
+template <class L, class T>
+ObjectiveLosses<T> losses_of() {
+  return {&L::template critic<T>, &L::template generator<T>};
+}
+template <class L>
+ObjectiveInfo entry(Objective id, const char* name, const char* about, bool logistic, double kink) {
+  return {id, name, about, logistic, kink, losses_of<L, float>(), losses_of<L, double>()};
 }
 
-Objective objective_from_string(const std::string& name) {
-  for (Objective o : {Objective::kMinimax, Objective::kNonSaturating, Objective::kLeastSquares,
-                      Objective::kHinge, Objective::kWasserstein})
-    if (name == to_string(o)) return o;
-  raise(ErrorKind::kBadRecipe,
-        "objective '" + name +
-            "' is not one of minimax, non-saturating, least-squares, hinge, wasserstein");
+}  // namespace
+
+const std::vector<ObjectiveInfo>& objectives() {
+  static const std::vector<ObjectiveInfo> all = {
+      entry<Minimax>(Objective::kMinimax, "minimax", "the minimax game of Goodfellow et al. 2014",
+                     true, 0),
+      entry<NonSaturating>(Objective::kNonSaturating, "non-saturating",
+                           "its non-saturating variant, from the same paper", true, 0),
+      entry<LeastSquares>(Objective::kLeastSquares, "least-squares",
+                          "least squares, Mao et al. 2017", false, 0),
+      entry<Hinge>(Objective::kHinge, "hinge", "the hinge loss of Miyato et al. 2018", false, 1),
+      entry<Wasserstein>(Objective::kWasserstein, "wasserstein",
+                         "the Wasserstein critic of Arjovsky et al. 2017, to use with "
+                         "objective.gradient_penalty",
+                         false, 0),
+  };
+  return all;
+}
+
+const ObjectiveInfo& objective_info(Objective objective) {
+  for (const ObjectiveInfo& o : objectives())
+    if (o.objective == objective) return o;
+  raise(ErrorKind::kBadArgument, "objective_info: an objective missing from the table");
+}
+
+const ObjectiveInfo& objective_named(const std::string& name) {
+  std::string names;
+  for (const ObjectiveInfo& o : objectives()) {
+    if (name == o.name) return o;
+    names += std::string(names.empty() ? "" : ", ") + o.name;
+  }
+  raise(ErrorKind::kBadRecipe, "objective '" + name + "' is not one of " + names);
 }
 
 template <class T>
 Var<T> discriminator_loss(Objective objective, const Var<T>& real_scores, const Var<T>& fake_scores,
                           const LeastSquaresTargets& targets) {
   const Var<T> r = flat(real_scores), f = flat(fake_scores);
-  switch (objective) {
-    case Objective::kMinimax:
-    case Objective::kNonSaturating:
-      // −log σ(r) = softplus(−r); −log(1 − σ(f)) = softplus(f).
-      return add(mean(softplus(negate(r))), mean(softplus(f)));
-    case Objective::kLeastSquares:
-      return scale(add(mean(square(add_scalar(r, -targets.real))),
-                       mean(square(add_scalar(f, -targets.fake)))),
-                   0.5);
-    case Objective::kHinge:
-      return add(mean(relu(add_scalar(negate(r), 1.0))), mean(relu(add_scalar(f, 1.0))));
-    case Objective::kWasserstein:
-      return subtract(mean(f), mean(r));
-  }
-  raise(ErrorKind::kBadArgument, "discriminator_loss: unknown objective");
+  return objective_info(objective).losses<T>().critic(r, f, targets);
 }
 
 template <class T>
 Var<T> generator_loss(Objective objective, const Var<T>& fake_scores,
                       const LeastSquaresTargets& targets) {
-  const Var<T> f = flat(fake_scores);
-  switch (objective) {
-    case Objective::kMinimax:
-      return negate(mean(softplus(f)));  // log(1 − σ(f)) = −softplus(f)
-    case Objective::kNonSaturating:
-      return mean(softplus(negate(f)));  // −log σ(f)
-    case Objective::kLeastSquares:
-      return scale(mean(square(add_scalar(f, -targets.generator))), 0.5);
-    case Objective::kHinge:
-    case Objective::kWasserstein:
-      return negate(mean(f));
-  }
-  raise(ErrorKind::kBadArgument, "generator_loss: unknown objective");
+  return objective_info(objective).losses<T>().generator(flat(fake_scores), targets);
+}
+
+// The penalties differentiate a recorded gradient: the backward pass is recorded too.
+GradientOptions recorded_gradient() {
+  GradientOptions o;
+  o.record = true;
+  return o;
 }
 
 template <class T>
@@ -100,7 +151,7 @@ Var<T> gradient_penalty(const Critic<T>& critic, const Tensor<T>& real, const Te
             .value();
   }
   const Var<T> mixed = tape.variable(mixed_value);
-  const Var<T> g = tape.gradient(sum(critic(mixed)), {mixed}, GradientOptions{true})[0];
+  const Var<T> g = tape.gradient(sum(critic(mixed)), {mixed}, recorded_gradient())[0];
   const Var<T> norms = sqrt(add_scalar(squared_norms(g), 1e-12));
   return scale(mean(square(add_scalar(norms, -1.0))), weight);
 }
@@ -108,7 +159,7 @@ Var<T> gradient_penalty(const Critic<T>& critic, const Tensor<T>& real, const Te
 template <class T>
 Var<T> r1_penalty(const Critic<T>& critic, const Tensor<T>& real, Tape<T>& tape, double gamma) {
   const Var<T> x = tape.variable(real);
-  const Var<T> g = tape.gradient(sum(critic(x)), {x}, GradientOptions{true})[0];
+  const Var<T> g = tape.gradient(sum(critic(x)), {x}, recorded_gradient())[0];
   return scale(mean(squared_norms(g)), gamma / 2);
 }
 

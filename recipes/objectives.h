@@ -19,6 +19,8 @@
 
 #include <functional>
 #include <string>
+#include <type_traits>
+#include <vector>
 
 #include "engine/ops.h"
 #include "engine/random.h"
@@ -27,15 +29,46 @@ namespace spar {
 
 enum class Objective { kMinimax, kNonSaturating, kLeastSquares, kHinge, kWasserstein };
 
-// The objective's name in recipes ("minimax", "non-saturating", "least-squares", "hinge",
-// "wasserstein"), and back (raises kBadRecipe for an unknown name, listing the valid ones).
-const char* to_string(Objective objective);
-Objective objective_from_string(const std::string& name);
-
 // Targets of the least-squares objective: fake a, real b, and c, what G wants D to say.
 struct LeastSquaresTargets {
   double fake = -1, real = 1, generator = 0;
 };
+
+// An objective's two losses for one element type, from the critic's scores.
+template <class T>
+struct ObjectiveLosses {
+  Var<T> (*critic)(const Var<T>& real_scores, const Var<T>& fake_scores,
+                   const LeastSquaresTargets& targets);
+  Var<T> (*generator)(const Var<T>& fake_scores, const LeastSquaresTargets& targets);
+};
+
+// Every objective, declared once (the table in objectives.cpp): the recipe reader takes the
+// accepted values of objective.name and their documentation from it, training its losses
+// and how to report scores, `spar check-gradients` its cases. A new objective is one entry
+// there (an enum value, its losses) plus its closed-form test in tests/test_objectives.cpp.
+struct ObjectiveInfo {
+  Objective objective;
+  const char* name;   // in recipes: "non-saturating"
+  const char* about;  // a phrase for the documentation, without parentheses
+  bool logistic;      // scores are logits: σ(score) is the critic's probability of "real"
+  double kink;        // |score| at which a loss has a kink (hinge: 1), 0 for none
+  ObjectiveLosses<float> float_losses;
+  ObjectiveLosses<double> double_losses;
+
+  template <class T>
+  const ObjectiveLosses<T>& losses() const {
+    if constexpr (std::is_same_v<T, float>)
+      return float_losses;
+    else
+      return double_losses;
+  }
+};
+
+// Every objective, in the order the documentation lists them.
+const std::vector<ObjectiveInfo>& objectives();
+const ObjectiveInfo& objective_info(Objective objective);
+// By its name in recipes; raises kBadRecipe for an unknown name, listing the valid ones.
+const ObjectiveInfo& objective_named(const std::string& name);
 
 template <class T>
 Var<T> discriminator_loss(Objective objective, const Var<T>& real_scores, const Var<T>& fake_scores,

@@ -1,6 +1,6 @@
 // Picture: an 8-bit raster image held in memory, the two layouts spar draws for people to
 // look at (a grid of generated images, a scatter plot of generated 2-D points), PNG encoding
-// through stb's writer, written atomically (write_file_atomically, engine/archive.h).
+// through stb's writer, written atomically (write_file_atomically, engine/atomic_file.h).
 //
 // Pixel values: images in [−1, 1] (the generator's tanh range) map to bytes by
 // round((v + 1) · 127.5), clamped to 0..255, halves rounded up; NaN is drawn as 0.
@@ -15,7 +15,7 @@
 #include <utility>
 #include <vector>
 
-#include "engine/archive.h"  // write_file_atomically
+#include "engine/atomic_file.h"  // write_file_atomically
 #include "engine/tensor.h"
 
 namespace spar {

@@ -50,7 +50,7 @@ AxisTicks round_ticks(double low, double high, int most = 6);
 // when x and y differ in length, or when there are no panels.
 std::string line_chart_svg(const std::vector<PlotPanel>& panels, const std::string& x_label);
 
-// Writes SVG text to `path` atomically (write_file_atomically in recipes/pictures.h);
+// Writes SVG text to `path` atomically (write_file_atomically, engine/atomic_file.h);
 // raises kIo naming the path on failure.
 void write_svg(const std::string& path, const std::string& text);
 

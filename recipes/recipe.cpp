@@ -13,6 +13,8 @@
 
 #include "engine/archive.h"
 #include "engine/error.h"
+#include "recipes/data_sources.h"
+#include "recipes/objectives.h"
 
 namespace spar {
 namespace detail {
@@ -63,83 +65,92 @@ struct Key {
   bool low_open = false;  // ... or (low, high] when set
 };
 
+// The key section.leaf is the field section.leaf of a Recipe: one spelling for both.
 #define SPAR_SLOT(member) +[](Recipe& r) -> void* { return &r.member; }
-#define SPAR_KEY(name, member, ...)                                            \
-  Key {                                                                        \
-    name, type_of<decltype(Recipe{}.member)>(), SPAR_SLOT(member), __VA_ARGS__ \
+#define SPAR_KEY(section, leaf, ...)                                                           \
+  Key {                                                                                        \
+#section "." #leaf, type_of < decltype(Recipe{}.section.leaf)>(), SPAR_SLOT(section.leaf), \
+        __VA_ARGS__                                                                            \
   }
 
-const char* const kObjectives = "minimax|non-saturating|least-squares|hinge|wasserstein";
+// The accepted values of a key listed in a table of its own (data sources, objectives), as
+// "a|b|c", and the key's documentation, "<lead>: a (about a), b (about b), ...".
+template <class Info>
+std::pair<std::string, std::string> choices_from(const std::vector<Info>& table,
+                                                 const std::string& lead) {
+  std::string choices, about = lead + ": ";
+  for (const Info& i : table) {
+    choices += (choices.empty() ? "" : "|") + std::string(i.name);
+    about += (&i == &table.front() ? "" : ", ") + std::string(i.name) + " (" + i.about + ")";
+  }
+  return {choices, about};
+}
 
 const std::vector<Key>& keys() {
   static const std::vector<Key> all = [] {
+    // Kept for the program's life: the keys point into them.
+    static const auto sources = choices_from(data_sources(), "where samples come from");
+    static const auto objective_names = choices_from(objectives(), "the adversarial objective");
     std::vector<Key> k = {
-        SPAR_KEY("data.source", data_source,
-                 "where samples come from: the built-in 2-D mixtures ring8 or grid25, the "
-                 "built-in fabric swatches, a folder of images, IDX files or a numeric CSV table",
-                 "ring8|grid25|swatches|images|idx|table"),
-        SPAR_KEY("data.path", data_path,
+        SPAR_KEY(data, source, sources.second.c_str(), sources.first.c_str()),
+        SPAR_KEY(data, path,
                  "images: the folder (sub-folders become classes); idx: the image file; "
                  "table: the CSV file. Relative paths are taken from the recipe file's folder"),
-        SPAR_KEY("data.labels", data_labels, "idx: the label file, or \"\" for none"),
-        SPAR_KEY("data.class_names", class_names,
+        SPAR_KEY(data, labels, "idx: the label file, or \"\" for none"),
+        SPAR_KEY(data, class_names,
                  "idx, table: names for classes 0, 1, ... (default: the numbers)"),
-        SPAR_KEY("data.image_size", image_size,
+        SPAR_KEY(data, image_size,
                  "images, swatches: side of the square images in pixels (28, 32 or 64 for the "
                  "dcgan model)",
                  nullptr, 8, 256),
-        SPAR_KEY("data.channels", channels, "images: 1 (grayscale) or 3 (RGB)", nullptr, 1, 3),
-        SPAR_KEY("data.pixel_limit", pixel_limit,
+        SPAR_KEY(data, channels, "images: 1 (grayscale) or 3 (RGB)", nullptr, 1, 3),
+        SPAR_KEY(data, pixel_limit,
                  "images: an image with more pixels is refused from its header, before it is "
                  "decoded",
                  nullptr, 1, 1e10),
-        SPAR_KEY("data.swatch_count", swatch_count, "swatches: how many to make", nullptr, 2, 1e7),
-        SPAR_KEY("data.labelled", table_labelled, "table: one column holds the class label"),
-        SPAR_KEY("data.label_column", label_column,
+        SPAR_KEY(data, swatch_count, "swatches: how many to make", nullptr, 2, 1e7),
+        SPAR_KEY(data, labelled, "table: one column holds the class label"),
+        SPAR_KEY(data, label_column,
                  "table: the label's column, 0-based; negative counts from the end (-1: last)"),
-        SPAR_KEY("data.header", table_header, "table: skip the first line"),
-        SPAR_KEY("data.low", table_low,
+        SPAR_KEY(data, header, "table: skip the first line"),
+        SPAR_KEY(data, low,
                  "table: the value mapped to -1; when low equals high, the table's minimum"),
-        SPAR_KEY("data.high", table_high,
+        SPAR_KEY(data, high,
                  "table: the value mapped to +1; when low equals high, the table's maximum"),
-        SPAR_KEY("data.picture_width", picture_width,
+        SPAR_KEY(data, picture_width,
                  "table: draw samples as grayscale pictures this many values wide (8 for the "
                  "digits table); 0 for none",
                  nullptr, 0, 4096),
-        SPAR_KEY("model.kind", model,
+        SPAR_KEY(model, kind,
                  "mlp: dense networks for points and tables; dcgan: convolutional networks "
                  "for images (Radford et al. 2015)",
                  "mlp|dcgan"),
-        SPAR_KEY("model.latent", latent, "size of the generator's latent vector", nullptr, 1, 4096),
-        SPAR_KEY("model.width", width,
+        SPAR_KEY(model, latent, "size of the generator's latent vector", nullptr, 1, 4096),
+        SPAR_KEY(model, width,
                  "mlp: units per hidden layer; dcgan: channels of the critic's first "
                  "convolution, doubled at each halving (the generator mirrors it)",
                  nullptr, 1, 4096),
-        SPAR_KEY("model.depth", depth, "mlp: hidden layers in each network", nullptr, 1, 32),
-        SPAR_KEY("model.spectral_normalisation", spectral_normalisation,
+        SPAR_KEY(model, depth, "mlp: hidden layers in each network", nullptr, 1, 32),
+        SPAR_KEY(model, spectral_normalisation,
                  "critic: spectral normalisation of every weight (Miyato et al. 2018); for "
                  "dcgan it replaces the critic's batch normalisation"),
-        SPAR_KEY("model.conditional", conditional,
+        SPAR_KEY(model, conditional,
                  "class-conditional networks (Mirza and Osindero 2014); needs labelled data"),
-        SPAR_KEY("objective.name", objective,
-                 "the adversarial objective: minimax (Goodfellow et al. 2014), its "
-                 "non-saturating variant, least-squares (Mao et al. 2017), hinge (Miyato et al. "
-                 "2018), wasserstein (Arjovsky et al. 2017; use with gradient_penalty)",
-                 kObjectives),
-        SPAR_KEY("objective.gradient_penalty", gradient_penalty,
+        SPAR_KEY(objective, name, objective_names.second.c_str(), objective_names.first.c_str()),
+        SPAR_KEY(objective, gradient_penalty,
                  "weight of the gradient penalty (Gulrajani et al. 2017 use 10); 0 off", nullptr,
                  0),
-        SPAR_KEY("objective.r1", r1,
+        SPAR_KEY(objective, r1,
                  "weight gamma of the R1 penalty on real data (Mescheder et al. 2018); 0 off",
                  nullptr, 0),
-        SPAR_KEY("objective.critic_steps", critic_steps,
+        SPAR_KEY(objective, critic_steps,
                  "critic steps per generator step (k in Goodfellow et al. 2014, Algorithm 1)",
                  nullptr, 1, 100),
-        SPAR_KEY("objective.least_squares_fake", least_squares_fake,
+        SPAR_KEY(objective, least_squares_fake,
                  "least-squares: the critic's target a for generated samples"),
-        SPAR_KEY("objective.least_squares_real", least_squares_real,
+        SPAR_KEY(objective, least_squares_real,
                  "least-squares: the critic's target b for real samples"),
-        SPAR_KEY("objective.least_squares_generator", least_squares_generator,
+        SPAR_KEY(objective, least_squares_generator,
                  "least-squares: the value c the generator wants the critic to give"),
     };
     for (int side = 0; side < 2; ++side) {
@@ -159,23 +170,22 @@ const std::vector<Key>& keys() {
 #undef SPAR_ADAM
     }
     const std::vector<Key> rest = {
-        SPAR_KEY("training.steps", steps, "generator steps in the whole run", nullptr, 1, 1e12),
-        SPAR_KEY("training.batch", batch, "samples per batch, real and generated alike", nullptr, 2,
-                 1e6),
-        SPAR_KEY("training.seed", seed,
+        SPAR_KEY(training, steps, "generator steps in the whole run", nullptr, 1, 1e12),
+        SPAR_KEY(training, batch, "samples per batch, real and generated alike", nullptr, 2, 1e6),
+        SPAR_KEY(training, seed,
                  "the run seed: initial weights, data order, latent draws all derive from it",
                  nullptr, 0, 9.0e18),
-        SPAR_KEY("training.average_decay", average_decay,
+        SPAR_KEY(training, average_decay,
                  "decay of the moving average of the generator's weights used for samples "
                  "(Yazici et al. 2019), warmed up as min(decay, (1 + t)/(10 + t)) at step t; "
                  "0 off",
                  nullptr, 0, 0.999999),
-        SPAR_KEY("output.log_every", log_every, "steps between rows of log.csv", nullptr, 1, 1e12),
-        SPAR_KEY("output.sample_every", sample_every, "steps between sample pictures in samples/",
+        SPAR_KEY(output, log_every, "steps between rows of log.csv", nullptr, 1, 1e12),
+        SPAR_KEY(output, sample_every, "steps between sample pictures in samples/", nullptr, 1,
+                 1e12),
+        SPAR_KEY(output, checkpoint_every, "steps between saves of state.spar and generator.spar",
                  nullptr, 1, 1e12),
-        SPAR_KEY("output.checkpoint_every", checkpoint_every,
-                 "steps between saves of state.spar and generator.spar", nullptr, 1, 1e12),
-        SPAR_KEY("output.sample_count", sample_count,
+        SPAR_KEY(output, sample_count,
                  "samples in each picture (2-D data: points in each scatter plot)", nullptr, 1,
                  1e5),
     };
@@ -487,7 +497,7 @@ Recipe load_recipe(const std::string& name_or_path, std::vector<std::string>* no
   // Data paths in a file are relative to the file's folder, so recipes travel with their data;
   // they are stored absolute, so a run can be resumed or judged from any directory.
   const std::filesystem::path folder = std::filesystem::path(name_or_path).parent_path();
-  for (std::string* p : {&recipe.data_path, &recipe.data_labels})
+  for (std::string* p : {&recipe.data.path, &recipe.data.labels})
     if (!p->empty() && std::filesystem::path(*p).is_relative())
       *p = std::filesystem::absolute(folder / *p).lexically_normal().string();
   return recipe;

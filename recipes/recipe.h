@@ -19,54 +19,61 @@
 
 namespace spar {
 
+// Each section of keys is a struct of its own and each key a field named as its leaf, so the
+// key data.image_size is the field data.image_size.
 struct Recipe {
-  // [data]
-  std::string data_source = "swatches";      // ring8, grid25, swatches, images, idx, table
-  std::string data_path;                     // images: folder; idx: image file; table: CSV file
-  std::string data_labels;                   // idx: label file ("" for none)
-  std::vector<std::string> class_names;      // idx, table: names for classes 0, 1, ...
-  int64_t image_size = 32;                   // images, swatches: side in pixels
-  int64_t channels = 3;                      // images: 1 (grayscale) or 3 (RGB)
-  int64_t swatch_count = 8192;               // swatches: how many to make
-  bool table_labelled = false;               // table: one column holds the class
-  int64_t label_column = -1;                 // table: that column (0-based, negative from the end)
-  bool table_header = false;                 // table: skip the first line
-  double table_low = 0, table_high = 0;      // table: value range mapped to [−1, 1]; equal: own
-  int64_t picture_width = 0;                 // table: draw samples as pictures this wide; 0 none
-  int64_t pixel_limit = kDefaultPixelLimit;  // images: refuse larger images before decoding
-
-  // [model]
-  std::string model = "dcgan";  // mlp or dcgan
-  int64_t latent = 100;
-  int64_t width = 64;  // mlp: units per hidden layer; dcgan: channels of the first convolution
-  int64_t depth = 3;   // mlp: hidden layers per network
-  bool spectral_normalisation = false;
-  bool conditional = false;
-
-  // [objective]
-  std::string objective = "non-saturating";
-  double gradient_penalty = 0;
-  double r1 = 0;
-  int64_t critic_steps = 1;
-  double least_squares_fake = -1, least_squares_real = 1, least_squares_generator = 0;
-
-  // [generator_optimiser], [critic_optimiser]: Adam
-  struct AdamKeys {
+  struct DataKeys {
+    std::string source = "swatches";           // the data sources of recipes/data_sources.h
+    std::string path;                          // images: folder; idx: image file; table: CSV file
+    std::string labels;                        // idx: label file ("" for none)
+    std::vector<std::string> class_names;      // idx, table: names for classes 0, 1, ...
+    int64_t image_size = 32;                   // images, swatches: side in pixels
+    int64_t channels = 3;                      // images: 1 (grayscale) or 3 (RGB)
+    int64_t pixel_limit = kDefaultPixelLimit;  // images: refuse larger images before decoding
+    int64_t swatch_count = 8192;               // swatches: how many to make
+    bool labelled = false;                     // table: one column holds the class
+    int64_t label_column = -1;  // table: that column (0-based, negative from the end)
+    bool header = false;        // table: skip the first line
+    double low = 0, high = 0;   // table: value range mapped to [−1, 1]; equal: own
+    int64_t picture_width = 0;  // table: draw samples as pictures this wide; 0 none
+  };
+  struct ModelKeys {
+    std::string kind = "dcgan";  // mlp or dcgan
+    int64_t latent = 100;
+    int64_t width = 64;  // mlp: units per hidden layer; dcgan: channels of the first convolution
+    int64_t depth = 3;   // mlp: hidden layers per network
+    bool spectral_normalisation = false;
+    bool conditional = false;
+  };
+  struct ObjectiveKeys {
+    std::string name = "non-saturating";  // the objectives of recipes/objectives.h
+    double gradient_penalty = 0;
+    double r1 = 0;
+    int64_t critic_steps = 1;
+    double least_squares_fake = -1, least_squares_real = 1, least_squares_generator = 0;
+  };
+  struct AdamKeys {  // [generator_optimiser], [critic_optimiser]
     double learning_rate = 2e-4, beta1 = 0.5, beta2 = 0.999, epsilon = 1e-8, weight_decay = 0;
   };
+  struct TrainingKeys {
+    int64_t steps = 5000;
+    int64_t batch = 64;
+    int64_t seed = 1;
+    double average_decay = 0.999;
+  };
+  struct OutputKeys {
+    int64_t log_every = 50;
+    int64_t sample_every = 500;
+    int64_t checkpoint_every = 1000;
+    int64_t sample_count = 64;
+  };
+
+  DataKeys data;
+  ModelKeys model;
+  ObjectiveKeys objective;
   AdamKeys generator_optimiser, critic_optimiser;
-
-  // [training]
-  int64_t steps = 5000;
-  int64_t batch = 64;
-  int64_t seed = 1;
-  double average_decay = 0.999;
-
-  // [output]
-  int64_t log_every = 50;
-  int64_t sample_every = 500;
-  int64_t checkpoint_every = 1000;
-  int64_t sample_count = 64;
+  TrainingKeys training;
+  OutputKeys output;
 };
 
 // One documented key. `type` is "string", "integer", "float", "boolean" or "list of strings".

@@ -18,7 +18,7 @@ std::vector<Tensor<float>*> tensors_of(const std::vector<NamedTensor<float>>& na
 // The mean of the critic's outputs as StepReport gives them: D's probability σ(score) for the
 // logistic objectives, the raw score for the others.
 double mean_output(Objective objective, const Var<float>& scores) {
-  const bool logistic = objective == Objective::kMinimax || objective == Objective::kNonSaturating;
+  const bool logistic = objective_info(objective).logistic;
   double sum = 0;
   const float* v = scores.value().data();
   for (int64_t i = 0; i < scores.element_count(); ++i)
@@ -64,16 +64,6 @@ void load_rng(const Archive& archive, const std::string& name, Rng& rng) {
 
 }  // namespace
 
-MixtureSource::MixtureSource(Mixture mixture, uint64_t seed)
-    : mixture_(std::move(mixture)), rng_(seed, derive_stream(seed, "data")) {}
-
-void MixtureSource::save(Archive& archive, const std::string& prefix) const {
-  save_rng(archive, prefix + ".stream", rng_);
-}
-void MixtureSource::load(const Archive& archive, const std::string& prefix) {
-  load_rng(archive, prefix + ".stream", rng_);
-}
-
 TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
                          const TrainingOptions& options)
     : pair_(std::move(pair)),
@@ -86,16 +76,16 @@ TrainingRun::TrainingRun(GanPair pair, std::unique_ptr<DataSource> data,
       penalty_rng_(options.seed, derive_stream(options.seed, "penalty")),
       seed_(options.seed) {
   if (options.critic_steps < 1 || options.batch < 2)
-    raise(ErrorKind::kBadRecipe, "trainer: critic steps must be ≥ 1 and the batch ≥ 2");
+    raise(ErrorKind::kBadArgument, "trainer: critic steps must be ≥ 1 and the batch ≥ 2");
   if (data_->classes() != pair_.classes)
-    raise(ErrorKind::kBadRecipe, "trainer: the data has " + std::to_string(data_->classes()) +
-                                     " classes but the model is built for " +
-                                     std::to_string(pair_.classes) +
-                                     (pair_.classes == 0 ? " (an unconditional model)" : ""));
+    raise(ErrorKind::kBadArgument, "trainer: the data has " + std::to_string(data_->classes()) +
+                                       " classes but the model is built for " +
+                                       std::to_string(pair_.classes) +
+                                       (pair_.classes == 0 ? " (an unconditional model)" : ""));
   if (data_->sample_shape() != pair_.sample_shape)
-    raise(ErrorKind::kBadRecipe, "trainer: the data's samples have shape " +
-                                     data_->sample_shape().str() + " but the generator makes " +
-                                     pair_.sample_shape.str());
+    raise(ErrorKind::kBadArgument, "trainer: the data's samples have shape " +
+                                       data_->sample_shape().str() + " but the generator makes " +
+                                       pair_.sample_shape.str());
   generator_params_ = pair_.generator->all_parameters("generator");
   critic_params_ = pair_.critic->all_parameters("critic");
   for (const NamedTensor<float>& p : generator_params_) average_.push_back(p.tensor->clone());
@@ -186,10 +176,9 @@ void TrainingRun::average_generator() {
   const double t = static_cast<double>(steps_);
   const double beta = std::min(options_.average_decay, (1 + t) / (10 + t));
   for (size_t i = 0; i < average_.size(); ++i)
-    average_[i] = beta > 0 ? kernels::binary(
-                                 kernels::Binary::kAdd, kernels::scale(average_[i], beta),
-                                 kernels::scale(*generator_params_[i].tensor, 1 - beta), "average")
-                           : *generator_params_[i].tensor;
+    average_[i] = beta > 0
+                      ? kernels::blend(average_[i], beta, *generator_params_[i].tensor, 1 - beta)
+                      : *generator_params_[i].tensor;
 }
 
 void TrainingRun::swap_average() {

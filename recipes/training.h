@@ -33,20 +33,13 @@
 
 namespace spar {
 
-// Endless fresh samples of a built-in 2-D mixture (mixtures.h), unlabelled.
-class MixtureSource final : public DataSource {
- public:
-  MixtureSource(Mixture mixture, uint64_t seed);
-  Shape sample_shape() const override { return {2}; }
-  Batch next_batch(int64_t n) override { return {sample_mixture(mixture_, n, rng_), {}}; }
-  void save(Archive& archive, const std::string& prefix) const override;
-  void load(const Archive& archive, const std::string& prefix) override;
-  const Mixture& mixture() const { return mixture_; }
-
- private:
-  Mixture mixture_;
-  Rng rng_;
-};
+// Adam as DCGAN trains (Radford et al. 2015): learning rate 2e-4, β1 = 0.5, the rest Adam's.
+inline AdamOptions dcgan_adam() {
+  AdamOptions o;
+  o.learning_rate = 2e-4;
+  o.beta1 = 0.5;
+  return o;
+}
 
 struct TrainingOptions {
   Objective objective = Objective::kNonSaturating;
@@ -55,8 +48,8 @@ struct TrainingOptions {
   double r1 = 0;                      // γ of the R1 penalty (Mescheder et al.: 10 common); 0 off
   int critic_steps = 1;               // critic steps per generator step (k)
   int64_t batch = 64;                 // samples per batch, real and generated alike
-  AdamOptions generator_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};  // DCGAN's settings
-  AdamOptions critic_optimiser{2e-4, 0.5, 0.999, 1e-8, 0};
+  AdamOptions generator_optimiser = dcgan_adam();
+  AdamOptions critic_optimiser = dcgan_adam();
   double average_decay = 0.999;  // β of the generator's weight average; 0 off. At generator
                                  // step t the decay used is min(β, (1 + t)/(10 + t)).
   uint64_t seed = 1;

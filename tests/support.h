@@ -3,11 +3,16 @@
 
 #include <unistd.h>
 
+#include <algorithm>
 #include <catch2/catch.hpp>
+#include <cstdlib>
 #include <cstring>
 #include <filesystem>
+#include <fstream>
 #include <functional>
+#include <iterator>
 #include <string>
+#include <vector>
 
 #include "engine/error.h"
 #include "engine/tensor.h"
@@ -28,6 +33,47 @@ inline ErrorKind error_kind_of(const std::function<void()>& fn, std::string* mes
   }
   FAIL("expected spar::Error, nothing was raised");
   return ErrorKind::kIo;  // not reached
+}
+
+// `load` raises kBadInputFile in one line whose message contains `culprit` (a path, or
+// "<path>:<line>:" for tables).
+inline void require_bad_input(const std::function<void()>& load, const std::string& culprit) {
+  std::string message;
+  CHECK(error_kind_of(load, &message) == ErrorKind::kBadInputFile);
+  INFO("message: " << message);
+  CHECK(message.find(culprit) != std::string::npos);
+  CHECK(message.find('\n') == std::string::npos);
+}
+
+// Writes `bytes` to the file at `path` (replacing it) and returns the path.
+inline std::string write_bytes(const std::string& path, const std::string& bytes) {
+  std::ofstream out(path, std::ios::binary);
+  out.write(bytes.data(), static_cast<std::streamsize>(bytes.size()));
+  REQUIRE(out.good());
+  return path;
+}
+
+// The whole file's bytes ("" when it cannot be read).
+inline std::string read_bytes(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+}
+
+// The names in `folder`, sorted, without "." and "..".
+inline std::vector<std::string> folder_entries(const std::string& folder) {
+  std::vector<std::string> out;
+  for (const auto& entry : std::filesystem::directory_iterator(folder))
+    out.push_back(entry.path().filename().string());
+  std::sort(out.begin(), out.end());
+  return out;
+}
+
+// A new empty folder "/tmp/<prefix>-XXXXXX" (mkdtemp), left to the test to remove, for
+// tests that check the folder is empty at the end.
+inline std::string new_temp_folder(const std::string& prefix) {
+  std::string pattern = "/tmp/" + prefix + "-XXXXXX";
+  REQUIRE(::mkdtemp(pattern.data()) != nullptr);
+  return pattern;
 }
 
 // Equal shapes and identical bytes (so NaN payloads and -0.0 count).

@@ -17,13 +17,16 @@
 #include "engine/buffer_pool.h"
 #include "engine/error.h"
 #include "recipes/recipe.h"
-#include "recipes/run.h"
+#include "recipes/run_folder.h"
+#include "recipes/saved_generator.h"
 #include "tests/support.h"
 
 namespace spar {
 namespace {
 
 using testing::error_kind_of;
+using testing::read_bytes;
+using testing::write_bytes;
 using testing::ScratchDir;
 
 constexpr int64_t kBigAllocation = int64_t{64} << 20;  // 64 MiB
@@ -120,28 +123,18 @@ std::string int64_payload(int64_t value) {
   return p;
 }
 
-std::string bytes_of(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  std::stringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
-void write_bytes(const std::string& path, const std::string& bytes) {
-  std::ofstream(path, std::ios::binary) << bytes;
-}
-
 // A real run folder: ring8 trained a few steps through the library.
 std::string small_run(const ScratchDir& dir) {
   Recipe r = load_recipe("ring8");
-  r.width = 16;
-  r.batch = 16;
-  r.steps = 4;
-  r.checkpoint_every = 2;
-  r.sample_every = 4;
-  r.sample_count = 16;
+  r.model.width = 16;
+  r.training.batch = 16;
+  r.training.steps = 4;
+  r.output.checkpoint_every = 2;
+  r.output.sample_every = 4;
+  r.output.sample_count = 16;
   const std::string folder = dir.folder("run");
   Run run = Run::start(folder, r, false);
-  REQUIRE(run.train_until(r.steps, nullptr, nullptr).end == RunEnd::kFinished);
+  REQUIRE(run.train_until(r.training.steps, nullptr, nullptr).end == RunEnd::kFinished);
   return folder;
 }
 
@@ -188,7 +181,7 @@ TEST_CASE("a saved generator whose sample shape is enormous is refused before ne
           "[hostile]") {
   ScratchDir dir;
   const std::string path = small_run(dir) + "/generator.spar";
-  const std::string original = bytes_of(path);
+  const std::string original = read_bytes(path);
   // The rewriting itself keeps a valid file: the recorded value written back loads.
   write_bytes(path, with_payload(original, "sample.dim0", int64_payload(2)));
   CHECK(load_generator(path).sample_shape == Shape({2}));
@@ -214,8 +207,8 @@ bool names_the_culprit(const std::string& message, const std::string& path) {
 // (about 2 GB of float32 weights per network).
 std::string huge_network_recipe(const std::string& path) {
   Recipe r = parse_recipe(Archive::read_file(path).text("recipe"), path);
-  r.width = 4096;
-  r.depth = 32;
+  r.model.width = 4096;
+  r.model.depth = 32;
   return to_toml(r);
 }
 
@@ -223,11 +216,11 @@ TEST_CASE("a saved generator whose recipe does not fit its tensors is refused be
           "[hostile]") {
   ScratchDir dir;
   const std::string path = small_run(dir) + "/generator.spar";
-  const std::string original = bytes_of(path);
+  const std::string original = read_bytes(path);
   const std::string recipe = Archive::read_file(path).text("recipe");
   // The rewriting itself keeps a valid file: the recipe read and written back loads.
   write_bytes(path, with_payload(original, "recipe", to_toml(parse_recipe(recipe, path))));
-  CHECK(load_generator(path).recipe.width == 16);
+  CHECK(load_generator(path).recipe.model.width == 16);
   write_bytes(path, with_payload(original, "recipe", huge_network_recipe(path)));
   const std::string message = refusal([&] { load_generator(path); });
   INFO(message);
@@ -240,14 +233,14 @@ TEST_CASE("a training state whose recipe does not fit its tensors is refused bef
   ScratchDir dir;
   const std::string folder = small_run(dir);
   const std::string path = folder + "/state.spar";
-  const std::string original = bytes_of(path);
+  const std::string original = read_bytes(path);
   const std::string recipe = Archive::read_file(path).text("recipe");
   write_bytes(path, with_payload(original, "recipe", to_toml(parse_recipe(recipe, path))));
   CHECK(Run::reopen(folder).steps_done() == 4);  // the rewriting itself keeps a valid state
   // recipe.toml says the same as the crafted state (its opening comment kept), so only the
   // state's tensors can show that the recipe does not fit.
   const std::string huge = huge_network_recipe(path);
-  std::string recipe_file = bytes_of(folder + "/recipe.toml"), comment;
+  std::string recipe_file = read_bytes(folder + "/recipe.toml"), comment;
   for (size_t at = 0; at < recipe_file.size() && recipe_file[at] == '#';) {
     const size_t end = recipe_file.find('\n', at);
     comment += recipe_file.substr(at, end - at + 1);

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <set>
 
+#include "recipes/data_sources.h"
 #include "recipes/mixtures.h"
 
 using namespace spar;
@@ -23,7 +24,13 @@ TEST_CASE("the ring has 8 distinct unit-radius modes and the grid 25 (Lin et al.
   CHECK(grid.means.front() == std::make_pair(-4.0, -4.0));
   CHECK(grid.means.back() == std::make_pair(4.0, 4.0));
   CHECK(grid.stddev == 0.05);
-  CHECK_THROWS_WITH(mixture_by_name("ring9"), Catch::Contains("'ring9'"));
+  Recipe unknown;
+  unknown.data.source = "ring9";
+  CHECK_THROWS_WITH(data_source_of(unknown),
+                    Catch::Contains("data.source") && Catch::Contains("\"ring9\""));
+  unknown.data.source = "grid25";
+  CHECK(data_source_of(unknown).endless());
+  CHECK(data_source_of(unknown).mixture().means.size() == 25);
 }
 
 TEST_CASE("true samples cover every mode with the high-quality fraction of a 2-D Gaussian",

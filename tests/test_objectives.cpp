@@ -70,9 +70,19 @@ TEST_CASE("each objective's losses match their closed forms on hand-picked score
     CHECK(std::isfinite(discriminator_loss(Objective::kMinimax, big, big).as_scalar()));
     CHECK(generator_loss(Objective::kNonSaturating, scores({-200})).as_scalar() == Approx(200));
   }
-  CHECK(objective_from_string("hinge") == Objective::kHinge);
-  CHECK_THROWS_WITH(objective_from_string("hing"),
-                    Catch::Contains("'hing'") && Catch::Contains("hinge"));
+  CHECK(objective_named("hinge").objective == Objective::kHinge);
+  CHECK_THROWS_WITH(objective_named("hing"), Catch::Contains("'hing'") && Catch::Contains("hinge"));
+  // The table holds each objective once, under its own enum value, and says which are logistic
+  // (their scores are logits: Goodfellow et al. 2014's D = σ(score)).
+  std::vector<std::string> names;
+  for (const ObjectiveInfo& o : objectives()) {
+    names.push_back(o.name);
+    CHECK(&objective_info(o.objective) == &o);
+    CHECK(o.logistic ==
+          (o.objective == Objective::kMinimax || o.objective == Objective::kNonSaturating));
+  }
+  CHECK(names == std::vector<std::string>{"minimax", "non-saturating", "least-squares", "hinge",
+                                          "wasserstein"});
 }
 
 namespace {

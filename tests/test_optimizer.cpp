@@ -140,7 +140,14 @@ TEMPLATE_TEST_CASE("adam's first step is -lr*g/(|g|+eps), about -lr*sign(g)", "[
   // Kingma & Ba 2015, Algorithm 1, at t = 1: m̂ = g and v̂ = g², so the step is
   // −α·g/(|g| + ε) whatever β1 and β2 are.
   const std::vector<double> g = {3e-4, -2.5, 1e3, -7e-7, 40, -1e-2};
-  for (const AdamOptions options : {AdamOptions{}, AdamOptions{2e-4, 0.5, 0.9, 1e-8, 0}}) {
+  // The defaults, and a GAN-style setting.
+  AdamOptions gan_style;
+  gan_style.learning_rate = 2e-4;
+  gan_style.beta1 = 0.5;
+  gan_style.beta2 = 0.9;
+  gan_style.epsilon = 1e-8;
+  gan_style.decoupled_weight_decay = 0;
+  for (const AdamOptions options : {AdamOptions{}, gan_style}) {
     Adam<T> adam(options);
     std::vector<Tensor<T>> params = {Tensor<T>::zeros(Shape{2, 3})};
     std::vector<T> gt(g.begin(), g.end());
@@ -166,8 +173,19 @@ TEMPLATE_TEST_CASE("adam follows Algorithm 1 over 50 steps", "[optimizer]", floa
   using T = TestType;
   const int steps = 50;
   // Two settings: the paper's β1, β2 and ε at a larger step, and a GAN-style one with decay.
-  for (const AdamOptions options :
-       {AdamOptions{1e-2, 0.9, 0.999, 1e-8, 0}, AdamOptions{1e-2, 0.5, 0.9, 1e-8, 0.1}}) {
+  AdamOptions paper;
+  paper.learning_rate = 1e-2;
+  paper.beta1 = 0.9;
+  paper.beta2 = 0.999;
+  paper.epsilon = 1e-8;
+  paper.decoupled_weight_decay = 0;
+  AdamOptions gan_style;
+  gan_style.learning_rate = 1e-2;
+  gan_style.beta1 = 0.5;
+  gan_style.beta2 = 0.9;
+  gan_style.epsilon = 1e-8;
+  gan_style.decoupled_weight_decay = 0.1;
+  for (const AdamOptions options : {paper, gan_style}) {
     INFO("beta1 " << options.beta1 << ", weight decay " << options.decoupled_weight_decay);
     Adam<T> adam(options);
     std::vector<Tensor<T>> params = start_params<T>();
@@ -205,7 +223,13 @@ TEMPLATE_TEST_CASE("decoupled weight decay with a zero gradient shrinks by exact
   // Loshchilov & Hutter 2019: the decay is applied to θ directly, not through the moments,
   // so with g = 0 (m = v = 0, and the Adam term 0/(0 + ε) = 0) only the decay acts.
   const double lr = 0.01, lambda = 0.5;
-  Adam<T> adam(AdamOptions{lr, 0.9, 0.999, 1e-8, lambda});
+  AdamOptions options;
+  options.learning_rate = lr;
+  options.beta1 = 0.9;
+  options.beta2 = 0.999;
+  options.epsilon = 1e-8;
+  options.decoupled_weight_decay = lambda;
+  Adam<T> adam(options);
   std::vector<Tensor<T>> params = {
       Tensor<T>::from_values(Shape{4}, {T(1), T(-3), T(1e-20), T(12345)})};
   const std::vector<Tensor<T>> zero = {Tensor<T>::zeros(Shape{4})};
@@ -231,7 +255,10 @@ TEMPLATE_TEST_CASE("momentum SGD and RMSProp follow their update rules", "[optim
 
   SECTION("heavy ball, hand-computed: g = 1 constant, mu = 0.5, lr = 0.1") {
     // velocity: 1, 1.5, 1.75; θ: 1 − 0.1, − 0.15, − 0.175 = 0.9, 0.75, 0.575 (by hand).
-    MomentumSgd<T> sgd(MomentumSgdOptions{0.1, 0.5});
+    MomentumSgdOptions options;
+    options.learning_rate = 0.1;
+    options.momentum = 0.5;
+    MomentumSgd<T> sgd(options);
     std::vector<Tensor<T>> params = {Tensor<T>::scalar(T(1))};
     const std::vector<Tensor<T>> one = {Tensor<T>::scalar(T(1))};
     for (double want : {0.9, 0.75, 0.575}) {
@@ -242,7 +269,11 @@ TEMPLATE_TEST_CASE("momentum SGD and RMSProp follow their update rules", "[optim
   SECTION("RMSProp, hand-computed: g = 2 constant, rho = 0.75, lr = 0.1") {
     // s1 = 0.25·4 = 1, θ1 = 1 − 0.2/(1 + ε) ≈ 0.8; s2 = 0.75 + 1 = 1.75,
     // θ2 = 0.8 − 0.2/√1.75 ≈ 0.6488142 (by hand; ε = 1e-8 shifts these by < 1e-8).
-    RmsProp<T> rms(RmsPropOptions{0.1, 0.75, 1e-8});
+    RmsPropOptions options;
+    options.learning_rate = 0.1;
+    options.decay = 0.75;
+    options.epsilon = 1e-8;
+    RmsProp<T> rms(options);
     std::vector<Tensor<T>> params = {Tensor<T>::scalar(T(1))};
     const std::vector<Tensor<T>> two = {Tensor<T>::scalar(T(2))};
     for (double want : {0.8, 0.6488142}) {
@@ -271,8 +302,15 @@ TEMPLATE_TEST_CASE("momentum SGD and RMSProp follow their update rules", "[optim
         max_theta = std::max({max_theta, std::abs(sgd_theta[k]), std::abs(rms_theta[k])});
       }
     }
-    MomentumSgd<T> sgd(MomentumSgdOptions{lr, mu});
-    RmsProp<T> rms(RmsPropOptions{lr, rho, eps});
+    MomentumSgdOptions sgd_options;
+    sgd_options.learning_rate = lr;
+    sgd_options.momentum = mu;
+    RmsPropOptions rms_options;
+    rms_options.learning_rate = lr;
+    rms_options.decay = rho;
+    rms_options.epsilon = eps;
+    MomentumSgd<T> sgd(sgd_options);
+    RmsProp<T> rms(rms_options);
     std::vector<Tensor<T>> p_sgd = start_params<T>(), p_rms = start_params<T>();
     for (int t = 0; t < steps; ++t) {
       sgd.step(pointers(p_sgd), fixed_grads<T>(t));
@@ -315,15 +353,28 @@ TEMPLATE_TEST_CASE("save, restore through bytes, continue: bit-identical", "[opt
   const std::vector<std::pair<std::string, Factory>> methods = {
       {"adam",
        [] {
-         return std::make_unique<Adam<T>>(AdamOptions{1e-2, 0.5, 0.9, 1e-8, 0.01});
+         AdamOptions options;
+         options.learning_rate = 1e-2;
+         options.beta1 = 0.5;
+         options.beta2 = 0.9;
+         options.epsilon = 1e-8;
+         options.decoupled_weight_decay = 0.01;
+         return std::make_unique<Adam<T>>(options);
        }},
       {"momentum-sgd",
        [] {
-         return std::make_unique<MomentumSgd<T>>(MomentumSgdOptions{1e-2, 0.9});
+         MomentumSgdOptions options;
+         options.learning_rate = 1e-2;
+         options.momentum = 0.9;
+         return std::make_unique<MomentumSgd<T>>(options);
        }},
       {"rmsprop",
        [] {
-         return std::make_unique<RmsProp<T>>(RmsPropOptions{1e-3, 0.9, 1e-8});
+         RmsPropOptions options;
+         options.learning_rate = 1e-3;
+         options.decay = 0.9;
+         options.epsilon = 1e-8;
+         return std::make_unique<RmsProp<T>>(options);
        }},
   };
   const int before = 7, after = 5;
@@ -396,7 +447,10 @@ TEMPLATE_TEST_CASE("step leaves tensors that shared the old parameter storage un
   using T = TestType;
   std::vector<std::unique_ptr<Optimizer<T>>> methods;
   methods.push_back(std::make_unique<Adam<T>>());
-  methods.push_back(std::make_unique<MomentumSgd<T>>(MomentumSgdOptions{0.1, 0.9}));
+  MomentumSgdOptions with_momentum;
+  with_momentum.learning_rate = 0.1;
+  with_momentum.momentum = 0.9;
+  methods.push_back(std::make_unique<MomentumSgd<T>>(with_momentum));
   methods.push_back(std::make_unique<RmsProp<T>>());
   for (auto& opt : methods) {
     std::vector<Tensor<T>> params = start_params<T>();
@@ -456,28 +510,134 @@ TEST_CASE("option values outside their ranges raise kBadArgument", "[optimizer]"
   std::string message;
   CHECK(error_kind_of(
             [] {
-              Adam<float>(AdamOptions{1e-3, 1.0, 0.999, 1e-8, 0});
+              AdamOptions options;
+              options.learning_rate = 1e-3;
+              options.beta1 = 1.0;  // out of range
+              options.beta2 = 0.999;
+              options.epsilon = 1e-8;
+              options.decoupled_weight_decay = 0;
+              Adam<float>{options};
             },
             &message) == ErrorKind::kBadArgument);
   CHECK(message.find("beta1") != std::string::npos);
   CHECK(error_kind_of([] {
-          Adam<float>(AdamOptions{-1, 0.9, 0.999, 1e-8, 0});
+          AdamOptions options;
+          options.learning_rate = -1;  // out of range
+          options.beta1 = 0.9;
+          options.beta2 = 0.999;
+          options.epsilon = 1e-8;
+          options.decoupled_weight_decay = 0;
+          Adam<float>{options};
         }) == ErrorKind::kBadArgument);
   CHECK(error_kind_of([] {
-          Adam<float>(AdamOptions{1e-3, 0.9, 0.999, 0, 0});
+          AdamOptions options;
+          options.learning_rate = 1e-3;
+          options.beta1 = 0.9;
+          options.beta2 = 0.999;
+          options.epsilon = 0;  // out of range
+          options.decoupled_weight_decay = 0;
+          Adam<float>{options};
         }) == ErrorKind::kBadArgument);
   CHECK(error_kind_of([] {
-          Adam<float>(AdamOptions{1e-3, 0.9, 0.999, 1e-8, -1});
+          AdamOptions options;
+          options.learning_rate = 1e-3;
+          options.beta1 = 0.9;
+          options.beta2 = 0.999;
+          options.epsilon = 1e-8;
+          options.decoupled_weight_decay = -1;  // out of range
+          Adam<float>{options};
         }) == ErrorKind::kBadArgument);
   CHECK(error_kind_of([] {
-          MomentumSgd<double>(MomentumSgdOptions{0.1, 1.5});
+          MomentumSgdOptions options;
+          options.learning_rate = 0.1;
+          options.momentum = 1.5;  // out of range
+          MomentumSgd<double>{options};
         }) == ErrorKind::kBadArgument);
   CHECK(error_kind_of([] {
-          RmsProp<double>(RmsPropOptions{0.1, -0.1, 1e-8});
+          RmsPropOptions options;
+          options.learning_rate = 0.1;
+          options.decay = -0.1;  // out of range
+          options.epsilon = 1e-8;
+          RmsProp<double>{options};
         }) == ErrorKind::kBadArgument);
   RmsProp<double> rms;
   CHECK(error_kind_of([&] { rms.set_learning_rate(std::nan("")); }) == ErrorKind::kBadArgument);
   CHECK(rms.learning_rate() == 1e-3);
+}
+
+namespace {
+// One optimiser type's learning rate, through options() and learning_rate(), after
+// set_learning_rate and load: one value, and the one the steps use.
+template <class Method, class Options>
+void check_learning_rate_has_one_home(const Options& constructed) {
+  Method method(constructed);
+  CHECK(method.options().learning_rate == constructed.learning_rate);
+  method.set_learning_rate(0.25);
+  CHECK(method.learning_rate() == 0.25);
+  CHECK(method.options().learning_rate == 0.25);
+  // A refused value changes nothing.
+  CHECK(error_kind_of([&] { method.set_learning_rate(-1); }) == ErrorKind::kBadArgument);
+  CHECK(method.options().learning_rate == 0.25);
+
+  // The steps use it: bit for bit those of an optimiser constructed with 0.25.
+  Options quarter = constructed;
+  quarter.learning_rate = 0.25;
+  Method reference(quarter);
+  std::vector<Tensor<double>> a = start_params<double>(), b = start_params<double>();
+  run_steps(method, a, 3);
+  run_steps(reference, b, 3);
+  CHECK(same_bits(a[0], b[0]));
+  CHECK(same_bits(a[1], b[1]));
+
+  // load brings the saved learning rate into the options; the other options stay as
+  // constructed.
+  spar::Archive saved;
+  method.save(saved, "opt");
+  Method loaded(constructed);
+  loaded.load(saved, "opt");
+  CHECK(loaded.learning_rate() == 0.25);
+  CHECK(loaded.options().learning_rate == 0.25);
+  // A load that fails leaves the learning rate as it was.
+  Method untouched(constructed);
+  spar::Archive damaged = saved;
+  damaged.put_int("opt/parameters", -1);
+  CHECK(error_kind_of([&] { untouched.load(damaged, "opt"); }) == ErrorKind::kCorruptCheckpoint);
+  CHECK(untouched.options().learning_rate == constructed.learning_rate);
+}
+}  // namespace
+
+TEST_CASE("options() reports the learning rate that set_learning_rate or load gave",
+          "[optimizer]") {
+  {
+    INFO("adam");
+    AdamOptions options;
+    options.learning_rate = 1e-3;
+    options.beta1 = 0.5;
+    options.beta2 = 0.99;
+    options.epsilon = 1e-8;
+    options.decoupled_weight_decay = 0.1;
+    check_learning_rate_has_one_home<Adam<double>>(options);
+    Adam<double> adam(options);
+    adam.set_learning_rate(0.25);
+    CHECK(adam.options().beta1 == 0.5);  // the other options stay
+    CHECK(adam.options().beta2 == 0.99);
+    CHECK(adam.options().decoupled_weight_decay == 0.1);
+  }
+  {
+    INFO("momentum-sgd");
+    MomentumSgdOptions options;
+    options.learning_rate = 1e-2;
+    options.momentum = 0.9;
+    check_learning_rate_has_one_home<MomentumSgd<double>>(options);
+  }
+  {
+    INFO("rmsprop");
+    RmsPropOptions options;
+    options.learning_rate = 1e-3;
+    options.decay = 0.9;
+    options.epsilon = 1e-8;
+    check_learning_rate_has_one_home<RmsProp<double>>(options);
+  }
 }
 
 TEMPLATE_TEST_CASE("large tensors (threaded path) match small ones (serial path) bit for bit",
@@ -496,10 +656,19 @@ TEMPLATE_TEST_CASE("large tensors (threaded path) match small ones (serial path)
                                   std::vector<T>(v.begin() + begin, v.begin() + begin + count));
   };
   std::vector<std::unique_ptr<Optimizer<T>>> big, small;
-  big.push_back(std::make_unique<Adam<T>>(AdamOptions{1e-2, 0.9, 0.999, 1e-8, 0.1}));
-  small.push_back(std::make_unique<Adam<T>>(AdamOptions{1e-2, 0.9, 0.999, 1e-8, 0.1}));
-  big.push_back(std::make_unique<MomentumSgd<T>>(MomentumSgdOptions{1e-2, 0.9}));
-  small.push_back(std::make_unique<MomentumSgd<T>>(MomentumSgdOptions{1e-2, 0.9}));
+  AdamOptions adam_options;
+  adam_options.learning_rate = 1e-2;
+  adam_options.beta1 = 0.9;
+  adam_options.beta2 = 0.999;
+  adam_options.epsilon = 1e-8;
+  adam_options.decoupled_weight_decay = 0.1;
+  MomentumSgdOptions sgd_options;
+  sgd_options.learning_rate = 1e-2;
+  sgd_options.momentum = 0.9;
+  big.push_back(std::make_unique<Adam<T>>(adam_options));
+  small.push_back(std::make_unique<Adam<T>>(adam_options));
+  big.push_back(std::make_unique<MomentumSgd<T>>(sgd_options));
+  small.push_back(std::make_unique<MomentumSgd<T>>(sgd_options));
   big.push_back(std::make_unique<RmsProp<T>>());
   small.push_back(std::make_unique<RmsProp<T>>());
   for (size_t o = 0; o < big.size(); ++o) {

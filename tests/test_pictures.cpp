@@ -172,17 +172,3 @@ TEST_CASE("write_png writes a PNG file in place and names the path when it canno
   wrong.channels = 2;  // gray + alpha is not offered
   CHECK(error_kind_of([&] { encode_png(wrong); }) == ErrorKind::kBadArgument);
 }
-
-TEST_CASE("write_file_atomically replaces a file whole and leaves no temporary behind",
-          "[pictures]") {
-  const std::string path = scratch_path("bytes");
-  const std::string first = "first contents", second = "second";
-  write_file_atomically(path, first.data(), first.size());
-  write_file_atomically(path, second.data(), second.size());
-  std::ifstream in(path, std::ios::binary);
-  const std::string read((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  CHECK(read == second);
-  const std::string tmp = path + ".tmp-" + std::to_string(static_cast<long>(::getpid()));
-  CHECK(std::ifstream(tmp).good() == false);
-  std::remove(path.c_str());
-}

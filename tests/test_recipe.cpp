@@ -37,8 +37,8 @@ TEST_CASE("every preset parses and survives a round trip through to_toml", "[rec
     const std::string text = to_toml(r);
     CHECK(to_toml(parse_recipe(text, "round trip")) == text);
   }
-  CHECK(load_recipe("swatches-conditional").conditional);
-  CHECK_FALSE(load_recipe("swatches").conditional);
+  CHECK(load_recipe("swatches-conditional").model.conditional);
+  CHECK_FALSE(load_recipe("swatches").model.conditional);
 }
 
 TEST_CASE("the resolved recipe is valid TOML for any UTF-8 path, other bytes are refused",
@@ -48,11 +48,11 @@ TEST_CASE("the resolved recipe is valid TOML for any UTF-8 path, other bytes are
   Recipe r;
   std::string odd = "fold\x01er/\x1f\x7f\ttab\rcr\nnl\"q\\b/\xc3\xa9t\xc3\xa9/\xf0\x9f\xa7\xb5";
   for (int c = 0; c < 0x20; ++c) odd.push_back(static_cast<char>(c == 0 ? 1 : c));
-  r.data_path = odd;
-  r.class_names = {"a\x02b", "\x7f"};
+  r.data.path = odd;
+  r.data.class_names = {"a\x02b", "\x7f"};
   const Recipe back = parse_recipe(to_toml(r), "round trip");
-  CHECK(back.data_path == odd);
-  CHECK(back.class_names == r.class_names);
+  CHECK(back.data.path == odd);
+  CHECK(back.data.class_names == r.data.class_names);
   // Regression: a non-UTF-8 file name given with --set was accepted and failed only at the
   // first checkpoint, after the run folder was made.
   Recipe s;
@@ -104,7 +104,8 @@ TEST_CASE("a value of the wrong type or out of range is refused with the key", "
   CHECK(contains(recipe_error([] { parse_recipe("[model]\nconditional = 1\n", "r"); }),
                  "must be a boolean, not the integer 1"));
   // Integers are accepted where a float is asked for (TOML has both; 1 means 1.0).
-  CHECK(parse_recipe("[objective]\ngradient_penalty = 10\n", "r").gradient_penalty == 10.0);
+  CHECK(parse_recipe("[objective]\ngradient_penalty = 10\n", "r").objective.gradient_penalty ==
+        10.0);
   CHECK(recipe_error([] { parse_recipe("[objective]\nname = \"hinje\"\n", "r.toml"); }) ==
         "r.toml:2: objective.name: \"hinje\" is not one of minimax, non-saturating, "
         "least-squares, hinge, wasserstein; did you mean \"hinge\"?");
@@ -119,11 +120,11 @@ TEST_CASE("settings from the command line use TOML values, bare words as strings
   apply_setting(r, "generator_optimiser.learning_rate=1e-3", "--set");
   apply_setting(r, "data.class_names=[\"a\", \"b\"]", "--set");
   apply_setting(r, "model.conditional=true", "--set");
-  CHECK(r.objective == "hinge");
-  CHECK(r.steps == 250);
+  CHECK(r.objective.name == "hinge");
+  CHECK(r.training.steps == 250);
   CHECK(r.generator_optimiser.learning_rate == 1e-3);
-  CHECK(r.class_names == std::vector<std::string>{"a", "b"});
-  CHECK(r.conditional);
+  CHECK(r.data.class_names == std::vector<std::string>{"a", "b"});
+  CHECK(r.model.conditional);
   CHECK(recipe_error([&] { apply_setting(r, "training.step=5", "--set training.step=5"); }) ==
         "--set training.step=5: training.step: unknown key; did you mean 'training.steps'?");
   CHECK(contains(recipe_error([&] { apply_setting(r, "training.steps", "--set"); }),
@@ -135,17 +136,17 @@ TEST_CASE("settings from the command line use TOML values, bare words as strings
 TEST_CASE("a key under its old name is read as the new one, with a note", "[recipe]") {
   std::vector<std::string> notes;
   const Recipe r = parse_recipe("[model]\nspectral_norm = true\n", "old.toml", &notes);
-  CHECK(r.spectral_normalisation);
+  CHECK(r.model.spectral_normalisation);
   REQUIRE(notes.size() == 1);
   CHECK(notes[0] ==
         "old.toml: model.spectral_norm is now called model.spectral_normalisation; the old name "
         "is still read, for now");
-  CHECK(parse_recipe("[model]\nspectral_norm = true\n", "old.toml").spectral_normalisation);
+  CHECK(parse_recipe("[model]\nspectral_norm = true\n", "old.toml").model.spectral_normalisation);
   Recipe s;
   notes.clear();
   CHECK(apply_setting(s, "model.spectral_norm=true", "--set", &notes) ==
         "model.spectral_normalisation");
-  CHECK(s.spectral_normalisation);
+  CHECK(s.model.spectral_normalisation);
   CHECK(notes.size() == 1);
   // The resolved recipe uses the new name only.
   CHECK(contains(to_toml(s), "\nspectral_normalisation = true\n"));

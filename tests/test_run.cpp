@@ -6,7 +6,8 @@
 #include <fstream>
 #include <sstream>
 
-#include "recipes/run.h"
+#include "recipes/run_folder.h"
+#include "recipes/saved_generator.h"
 #include "recipes/swatches.h"
 #include "tests/support.h"
 
@@ -15,15 +16,9 @@ namespace {
 
 using testing::error_kind_of;
 using testing::same_bits;
+using testing::read_bytes;
 using testing::ScratchDir;
 namespace fs = std::filesystem;
-
-std::string bytes_of(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  std::stringstream s;
-  s << in.rdbuf();
-  return s.str();
-}
 
 // An archive's bytes with the records that name the run and time it blanked, and its run id.
 std::pair<std::string, std::string> records_but_id(const std::string& path) {
@@ -37,13 +32,13 @@ std::pair<std::string, std::string> records_but_id(const std::string& path) {
 // A ring8 recipe small enough for a unit test.
 Recipe small_points() {
   Recipe r = load_recipe("ring8");
-  r.width = 16;
-  r.batch = 16;
-  r.steps = 40;
-  r.log_every = 5;
-  r.sample_every = 10;
-  r.checkpoint_every = 10;
-  r.sample_count = 50;
+  r.model.width = 16;
+  r.training.batch = 16;
+  r.training.steps = 40;
+  r.output.log_every = 5;
+  r.output.sample_every = 10;
+  r.output.checkpoint_every = 10;
+  r.output.sample_count = 50;
   return r;
 }
 
@@ -51,15 +46,15 @@ Recipe small_points() {
 // all take part in the resume check.
 Recipe small_images() {
   Recipe r = load_recipe("swatches-conditional");
-  r.swatch_count = 40;
-  r.width = 4;
-  r.latent = 8;
-  r.batch = 8;
-  r.steps = 12;
-  r.log_every = 2;
-  r.sample_every = 4;
-  r.checkpoint_every = 4;
-  r.sample_count = 16;
+  r.data.swatch_count = 40;
+  r.model.width = 4;
+  r.model.latent = 8;
+  r.training.batch = 8;
+  r.training.steps = 12;
+  r.output.log_every = 2;
+  r.output.sample_every = 4;
+  r.output.checkpoint_every = 4;
+  r.output.sample_count = 16;
   return r;
 }
 
@@ -72,7 +67,7 @@ TEST_CASE("a run writes its folder: recipe, log, samples, curves, checkpoints", 
   ScratchDir dir;
   const std::string folder = dir.folder("run");
   const Recipe r = small_points();
-  train(folder, r, r.steps);
+  train(folder, r, r.training.steps);
   for (const char* name :
        {"recipe.toml", "log.csv", "curves.svg", "state.spar", "generator.spar",
         "samples/step-000000.png", "samples/step-000010.png", "samples/step-000040.png"})
@@ -80,17 +75,17 @@ TEST_CASE("a run writes its folder: recipe, log, samples, curves, checkpoints", 
   // The resolved recipe reads back as the recipe the run used.
   CHECK(to_toml(load_recipe(folder + "/recipe.toml")) == to_toml(r));
   // log.csv: a header and one row per 5 steps.
-  std::stringstream log(bytes_of(folder + "/log.csv"));
+  std::stringstream log(read_bytes(folder + "/log.csv"));
   std::string line;
   int rows = -1;
   while (std::getline(log, line)) ++rows;
   CHECK(rows == 40 / 5);
   // An existing run folder is refused unless forced, and nothing in it changes.
-  const std::string before = bytes_of(folder + "/generator.spar");
+  const std::string before = read_bytes(folder + "/generator.spar");
   std::string message;
   CHECK(error_kind_of([&] { Run::start(folder, r, false); }, &message) == ErrorKind::kBadArgument);
   CHECK(message.find(folder + ": is not empty") == 0);
-  CHECK(bytes_of(folder + "/generator.spar") == before);
+  CHECK(read_bytes(folder + "/generator.spar") == before);
   Run::start(folder, r, true);
   CHECK_FALSE(fs::exists(fs::path(folder) / "samples/step-000040.png"));
 }
@@ -107,16 +102,16 @@ TEST_CASE("the same seed gives the same generator, bit for bit", "[run]") {
   CHECK(a.second != b.second);
   CHECK(a.second.size() == 16);
   Recipe other = r;
-  other.seed = 2;
+  other.training.seed = 2;
   train(dir.folder("c"), other, 20);
   CHECK(records_but_id(dir.folder("c") + "/generator.spar").first != a.first);
 }
 
 TEST_CASE("stopping and resuming equals running straight through", "[run]") {
   for (const Recipe& r : {small_points(), small_images()}) {
-    INFO(r.data_source);
+    INFO(r.data.source);
     ScratchDir dir;
-    const int64_t total = r.steps, half = total / 2;
+    const int64_t total = r.training.steps, half = total / 2;
     train(dir.folder("straight"), r, total);
     {
       // Stop after `half` steps through the stop flag, as Ctrl-C does.
@@ -135,8 +130,8 @@ TEST_CASE("stopping and resuming equals running straight through", "[run]") {
           records_but_id(dir.folder("stopped") + "/generator.spar").first);
     CHECK(records_but_id(dir.folder("straight") + "/state.spar").first ==
           records_but_id(dir.folder("stopped") + "/state.spar").first);
-    CHECK(bytes_of(dir.folder("straight") + "/log.csv").size() ==
-          bytes_of(dir.folder("stopped") + "/log.csv").size());
+    CHECK(read_bytes(dir.folder("straight") + "/log.csv").size() ==
+          read_bytes(dir.folder("stopped") + "/log.csv").size());
   }
 }
 
@@ -157,7 +152,7 @@ TEST_CASE("a saved generator samples, one from another architecture is refused",
   // The same tensors under a recipe with wider networks: every shape disagrees.
   Archive a = Archive::read_file(dir.folder("run") + "/generator.spar");
   Recipe wider = r;
-  wider.width = 8;
+  wider.model.width = 8;
   a.put_text("recipe", to_toml(wider));
   a.write_file(dir.file("other.spar"));
   std::string message;
@@ -196,8 +191,8 @@ TEST_CASE("a forced start removes only what a run writes, stale temporaries go t
   CHECK(error_kind_of([&] { Run::start(folder, r, false); }, &message) == ErrorKind::kBadArgument);
   CHECK(message.find("--force removes only the files a run writes") != std::string::npos);
   Run::start(folder, r, true);
-  CHECK(bytes_of(folder + "/notes.txt") == "mine");
-  CHECK(bytes_of(folder + "/samples/favourite.png") == "mine too");
+  CHECK(read_bytes(folder + "/notes.txt") == "mine");
+  CHECK(read_bytes(folder + "/samples/favourite.png") == "mine too");
   CHECK(fs::exists(folder + "/state.spar.tmp-old"));
   CHECK_FALSE(fs::exists(folder + "/state.spar.tmp-12345"));
   CHECK_FALSE(fs::exists(folder + "/samples/step-000010.png.tmp-99"));
@@ -205,12 +200,37 @@ TEST_CASE("a forced start removes only what a run writes, stale temporaries go t
   CHECK(fs::exists(folder + "/samples/step-000000.png"));
 }
 
+TEST_CASE("reopen writes generator.spar again when a kill left it a checkpoint behind", "[run]") {
+  // The kill between the two writes of a checkpoint (state.spar first): cli_kill_anywhere met
+  // it at the last checkpoint, where resume has nothing left to train.
+  ScratchDir dir;
+  const std::string folder = dir.folder("run");
+  std::string behind, current;
+  {
+    Run run = Run::start(folder, small_points(), false);
+    REQUIRE(run.train_until(30, nullptr, nullptr).end == RunEnd::kFinished);
+    behind = read_bytes(folder + "/generator.spar");  // step 30
+    REQUIRE(run.train_until(40, nullptr, nullptr).end == RunEnd::kFinished);
+    current = read_bytes(folder + "/generator.spar");  // step 40
+  }
+  REQUIRE(behind != current);
+  for (const bool missing : {false, true}) {
+    if (missing)
+      fs::remove(folder + "/generator.spar");
+    else
+      write_text(folder + "/generator.spar", behind);
+    Run run = Run::reopen(folder);
+    CHECK(run.steps_done() == 40);
+    CHECK(read_bytes(folder + "/generator.spar") == current);
+  }
+}
+
 TEST_CASE("reopen removes stale temporaries and keeps the run's identity", "[run]") {
   ScratchDir dir;
   const std::string folder = dir.folder("run");
   train(folder, small_points(), 10);
   const std::string id = Archive::read_file(folder + "/state.spar").text("run.id");
-  CHECK(bytes_of(folder + "/recipe.toml").rfind("# spar run " + id + ", recipe ", 0) == 0);
+  CHECK(read_bytes(folder + "/recipe.toml").rfind("# spar run " + id + ", recipe ", 0) == 0);
   write_text(folder + "/generator.spar.tmp-4242", "partial");
   {
     Run run = Run::reopen(folder);
@@ -251,7 +271,7 @@ TEST_CASE("a foreign state.spar and an edited recipe.toml are refused on resume"
   CHECK(message.find("holds run " + id_b) != std::string::npos);
 
   // An edit: refused naming the key and both values, unless asked for with a setting.
-  std::string toml = bytes_of(a + "/recipe.toml");
+  std::string toml = read_bytes(a + "/recipe.toml");
   const std::string from = "learning_rate = 0.001", to = "learning_rate = 0.002";
   REQUIRE(toml.find(from) != std::string::npos);
   toml.replace(toml.find(from), from.size(), to);
@@ -263,7 +283,7 @@ TEST_CASE("a foreign state.spar and an edited recipe.toml are refused on resume"
   const std::string key =
       message.substr(message.find("it: ") + 4, message.find(" (") - message.find("it: ") - 4);
   Run changed = Run::reopen(a, {key + "=0.002"});
-  CHECK(bytes_of(a + "/history.txt") ==
+  CHECK(read_bytes(a + "/history.txt") ==
         "step 10: " + key + " (0.001 → 0.002), by spar resume --set\n");
   CHECK(changed.train_until(12, nullptr, nullptr).end == RunEnd::kFinished);
   // Keys that describe what was trained cannot change.
@@ -281,14 +301,14 @@ TEST_CASE("data paths are stored absolute, a moved data file names data.path", "
              "[data]\nsource = \"table\"\npath = \"../data/points.csv\"\n"
              "[model]\nkind = \"mlp\"\nwidth = 8\nlatent = 4\n[training]\nbatch = 8\n");
   const Recipe r = load_recipe(recipes + "/table.toml");
-  CHECK(fs::path(r.data_path).is_absolute());
-  CHECK(fs::equivalent(r.data_path, data + "/points.csv"));
+  CHECK(fs::path(r.data.path).is_absolute());
+  CHECK(fs::equivalent(r.data.path, data + "/points.csv"));
   train(dir.folder("run"), r, 4);
   fs::rename(data + "/points.csv", data + "/moved.csv");
   std::string message;
   CHECK(error_kind_of([&] { Run::reopen(dir.folder("run")); }, &message) == ErrorKind::kBadRecipe);
   CHECK(message.find("data.path") != std::string::npos);
-  CHECK(message.find(r.data_path) != std::string::npos);
+  CHECK(message.find(r.data.path) != std::string::npos);
 }
 
 TEST_CASE("a non-finite loss stops the run naming it and the kept checkpoint's step", "[run]") {
@@ -296,9 +316,9 @@ TEST_CASE("a non-finite loss stops the run naming it and the kept checkpoint's s
   // and finished normally. ½(D(x) − 1e30)² overflows float32 (FLT_MAX ≈ 3.4e38).
   ScratchDir dir;
   Recipe r = small_points();
-  r.objective = "least-squares";
-  r.least_squares_real = 1e30;
-  r.checkpoint_every = 3;
+  r.objective.name = "least-squares";
+  r.objective.least_squares_real = 1e30;
+  r.output.checkpoint_every = 3;
   Run run = Run::start(dir.folder("run"), r, false);
   const RunResult result = run.train_until(20, nullptr, nullptr);
   CHECK(result.end == RunEnd::kNumericalFailure);

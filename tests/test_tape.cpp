@@ -9,6 +9,7 @@
 #include "engine/error.h"
 #include "engine/ops.h"
 #include "engine/random.h"
+#include "engine/tape_detail.h"  // the nodes, for invariant 1
 
 using namespace spar;
 using D = Tensor<double>;
@@ -18,6 +19,14 @@ namespace {
 D vec(std::vector<double> v) {
   return D::from_values({static_cast<int64_t>(v.size())}, v);
 }
+
+// Options for gradient() with GradientOptions::record set by name: with_record(true) records
+// the backward pass, so the gradients can be differentiated again.
+GradientOptions with_record(bool record) {
+  GradientOptions options;
+  options.record = record;
+  return options;
+}
 }  // namespace
 
 TEST_CASE("invariant 1: inputs are recorded before the node that uses them", "[tape]") {
@@ -26,10 +35,10 @@ TEST_CASE("invariant 1: inputs are recorded before the node that uses them", "[t
   V x = tape.variable(rng.uniform<double>({3, 4}, -1, 1));
   V w = tape.variable(rng.uniform<double>({4, 2}, -1, 1));
   V y = sum(tanh(matmul(x, w)) * sigmoid(matmul(x, w)));
-  tape.gradient(y, {x, w}, GradientOptions{true});
+  tape.gradient(y, {x, w}, with_record(true));
   REQUIRE(tape.size() > 10);
   for (int64_t i = 0; i < tape.size(); ++i)
-    for (const V& in : tape.node(i).inputs)
+    for (const V& in : detail::TapeAccess<double>::node(tape, i).inputs)
       if (in.recorded()) CHECK(in.id() < i);
 }
 
@@ -40,7 +49,7 @@ TEST_CASE("invariant 2: operations and gradients never write into recorded value
   const D a_copy = a.clone(), b_copy = b.clone();
   V va = tape.variable(a), vb = tape.variable(b);
   V y = sum(square(va * vb + vb) / (vb * vb + 1.0));
-  std::vector<V> g = tape.gradient(y, {va, vb}, GradientOptions{true});
+  std::vector<V> g = tape.gradient(y, {va, vb}, with_record(true));
   tape.gradient(sum(g[0] * g[0]) + sum(g[1]), {va, vb});
   CHECK(equal(a, a_copy));
   CHECK(equal(b, b_copy));
@@ -137,7 +146,7 @@ TEST_CASE("invariant 8: fused and recorded adjoints give the same gradient", "[t
     V x = tape.variable(x0), gamma = tape.variable(gamma0), beta = tape.variable(beta0);
     V y = leaky_relu(batch_normalise(x, gamma, beta, 1e-3), 0.2);
     V loss = sum(multiply(V(w0), add(tanh(y), square(relu(y)))));
-    std::vector<V> g = tape.gradient(loss, {x, gamma, beta}, GradientOptions{record});
+    std::vector<V> g = tape.gradient(loss, {x, gamma, beta}, with_record(record));
     for (const V& v : g) CHECK(v.recorded() == record);
     std::vector<D> out;
     for (const V& v : g) out.push_back(v.value());
@@ -152,9 +161,9 @@ TEST_CASE("invariant 8: fused and recorded adjoints give the same gradient", "[t
 TEST_CASE("the gradient of a gradient: d³/dx³ x⁴ = 24x (calculus)", "[tape][second-order]") {
   Tape<double> tape;
   V x = tape.variable(vec({0.5, -1.5}));
-  V g1 = tape.gradient(sum(power(x, 4.0)), {x}, GradientOptions{true})[0];  // 4x³
-  V g2 = tape.gradient(sum(g1), {x}, GradientOptions{true})[0];             // 12x²
-  V g3 = tape.gradient(sum(g2), {x})[0];                                    // 24x
+  V g1 = tape.gradient(sum(power(x, 4.0)), {x}, with_record(true))[0];  // 4x³
+  V g2 = tape.gradient(sum(g1), {x}, with_record(true))[0];             // 12x²
+  V g3 = tape.gradient(sum(g2), {x})[0];                                // 24x
   CHECK(g1.value().at({1}) == Approx(4 * -3.375).epsilon(1e-14));
   CHECK(g2.value().at({0}) == Approx(12 * 0.25).epsilon(1e-14));
   CHECK(g3.value().at({0}) == Approx(12.0).epsilon(1e-14));
@@ -167,7 +176,7 @@ TEST_CASE("Hessian of a quadratic form xᵀAx is A + Aᵀ (calculus)", "[tape][s
   const D a = rng.uniform<double>({4, 4}, -1, 1);
   V x = tape.variable(rng.uniform<double>({4, 1}, -1, 1));
   V f = sum(matmul(matmul(x, V(a), true, false), x));  // xᵀ A x
-  V g = tape.gradient(f, {x}, GradientOptions{true})[0];
+  V g = tape.gradient(f, {x}, with_record(true))[0];
   for (int j = 0; j < 4; ++j) {  // column j of the Hessian = ∇(g_j)
     V hj = tape.gradient(sum(slice(g, 0, j, j + 1)), {x})[0];
     for (int i = 0; i < 4; ++i)
@@ -180,7 +189,7 @@ TEST_CASE("gradient of the squared gradient norm equals 2·H·∇f (calculus)",
   // f(x) = Σ exp(x)·x: ∇f = e^x (1 + x), H = diag(e^x (2 + x)).
   Tape<double> tape;
   V x = tape.variable(vec({-0.3, 0.1, 0.8}));
-  V g = tape.gradient(sum(exp(x) * x), {x}, GradientOptions{true})[0];
+  V g = tape.gradient(sum(exp(x) * x), {x}, with_record(true))[0];
   D r = tape.gradient(sum(g * g), {x})[0].value();
   for (int i = 0; i < 3; ++i) {
     const double xi = x.value().at({i}), e = std::exp(xi);
@@ -194,7 +203,7 @@ TEST_CASE("gradient() rejects a non-scalar and a recording request with recordin
   CHECK_THROWS_WITH(tape.gradient(x * x, {x}), Catch::Contains("[2]"));
   V y = sum(x * x);
   NoRecordScope off;
-  CHECK_THROWS_AS(tape.gradient(y, {x}, GradientOptions{true}), Error);
+  CHECK_THROWS_AS(tape.gradient(y, {x}, with_record(true)), Error);
 }
 
 TEST_CASE("vector_jacobian_product seeds the adjoint of a non-scalar value", "[tape]") {

@@ -1,12 +1,12 @@
-// Fuzz target: a saved generator (generator.spar, recipes/run.h) through load_generator on a
-// temporary file, then two samples drawn from what was loaded. The input is the file's bytes.
+// Fuzz target: a saved generator (generator.spar, recipes/saved_generator.h) through load_generator
+// on a temporary file, then two samples drawn from what was loaded. The input is the file's bytes.
 // A crafted generator.spar (a recorded sample shape, an embedded recipe, tensors that do not
 // fit) must be refused with spar::Error before it allocates or computes anything absurd.
 // Under libFuzzer the mutator fixes each record's CRC after mutating (fuzz_support.h).
 #include <string>
 
 #include "fuzz_support.h"
-#include "recipes/run.h"
+#include "recipes/saved_generator.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   using namespace spar;

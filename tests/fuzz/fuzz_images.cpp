@@ -7,7 +7,7 @@
 // the full size its header claims, so a 126-byte BMP claiming 3 × 8,323,074 pixels took 0.34 s
 // in a Release build and over the fuzzer's 10 s under its instrumentation, which is not a hang.
 // The regressions of images claiming gigapixels are refused from the header under this limit
-// too; tests/test_datasets.cpp checks the refusal at the default limit.
+// too; tests/test_image_folders.cpp checks the refusal at the default limit.
 #include <string>
 
 #include "fuzz_support.h"

@@ -24,7 +24,7 @@
 #include "engine/archive.h"
 #include "fuzz_support.h"
 #include "recipes/recipe.h"
-#include "recipes/run.h"
+#include "recipes/run_folder.h"
 
 namespace fs = std::filesystem;
 using namespace spar;
@@ -71,10 +71,10 @@ fs::path work;  // where the runs go
 
 fs::path tiny_run(const std::string& name, Recipe recipe) {
   const fs::path folder = work / name;
-  recipe.steps = 1;
-  recipe.checkpoint_every = 1;
-  recipe.sample_every = 1;
-  recipe.log_every = 1;
+  recipe.training.steps = 1;
+  recipe.output.checkpoint_every = 1;
+  recipe.output.sample_every = 1;
+  recipe.output.log_every = 1;
   Run run = Run::start(folder.string(), recipe, /*force=*/true);
   run.train_until(1, nullptr, [](const RunProgress&) {});
   return folder;
@@ -137,8 +137,8 @@ void archives_and_generators() {
   // network were built before the first tensor was found not to fit.
   Archive huge = Archive::from_bytes(points_generator, "points generator");
   Recipe r = parse_recipe(huge.text("recipe"), "points generator");
-  r.width = 4096;
-  r.depth = 32;
+  r.model.width = 4096;
+  r.model.depth = 32;
   huge.put_text("recipe", to_toml(r));
   write("regressions/generator/recipe_width4096_depth32_networks_built_first", huge.to_bytes());
 }

@@ -1,5 +1,5 @@
-// A training run on disk: building the data, networks and loop a recipe describes, and the
-// run folder that records it.
+// A training run in its folder: the run (built from a recipe by recipes/run_parts.h) and
+// the folder that records it: log, sample pictures, curves, checkpoints.
 //
 // Run folder layout (docs/file-formats.md, "Run folders"):
 //   recipe.toml                 the resolved recipe: every key with the value this run uses
@@ -25,7 +25,8 @@
 //   refuses a state.spar of another run, and a recipe.toml edited since the run wrote it
 //   unless the edit is asked for with a setting.
 // - Data paths are stored absolute, so a run resumes and samples from any directory.
-// - Temporary files an interrupted write left behind are removed on the next start or reopen.
+// - Temporary files an interrupted write left behind are removed on the next start or reopen,
+//   and a generator.spar left a checkpoint behind its state.spar is written again.
 //
 // Thread safety: one thread at a time. The `stop` flag may be set from a signal handler.
 #pragma once
@@ -34,28 +35,12 @@
 #include <functional>
 #include <memory>
 #include <string>
+#include <vector>
 
-#include "recipes/datasets.h"
 #include "recipes/recipe.h"
 #include "recipes/training.h"
 
 namespace spar {
-
-// ---- From a recipe to the pieces of a run ----
-
-// Loads or makes the data the recipe names, with its labels when it has any. Raises kBadRecipe for
-// an inconsistent recipe (naming the key) and kBadInputFile for data that cannot be read (naming
-// the file).
-Dataset load_dataset(const Recipe& recipe);  // not for the built-in 2-D mixtures
-// The source a run trains on: a mixture's endless draws, or load_dataset's data shuffled
-// from the run seed (without labels unless the recipe is conditional).
-std::unique_ptr<DataSource> make_data_source(const Recipe& recipe);
-// The recipe's networks for samples of `sample_shape`, with `classes` classes when the
-// recipe is conditional; initial weights from the run seed.
-GanPair make_gan_pair(const Recipe& recipe, const Shape& sample_shape, int64_t classes);
-TrainingOptions training_options(const Recipe& recipe);
-
-// ---- A run in its folder ----
 
 struct RunProgress {
   int64_t step = 0;         // generator steps done
@@ -116,7 +101,11 @@ class Run {
  private:
   // Loads the data and builds the networks; with `state`, under a budget of its tensors.
   Run(std::string folder, Recipe recipe, const Archive* state = nullptr);
-  void save_checkpoints();
+  void save_checkpoints();  // save_state, then save_generator
+  void save_state();
+  void save_generator();
+  // What both checkpoints begin with: their kind, the run's identity, recipe and sample shape.
+  Archive checkpoint_header(const char* kind) const;
   void write_log_row(const StepReport& report);
   void write_samples();
   void write_curves();
@@ -138,30 +127,5 @@ class Run {
   double elapsed_before_ = 0;  // seconds of training before this process
   double elapsed_ = 0;
 };
-
-// ---- The saved generator ----
-
-struct SavedGenerator {
-  Recipe recipe;
-  int64_t step = 0;
-  Shape sample_shape;
-  std::vector<std::string> class_names;  // empty for an unconditional generator
-  GanPair pair;                          // the critic is built but untrained
-};
-// Reads generator.spar (a run folder may be given for its generator.spar). Raises
-// kCorruptCheckpoint for a damaged file or one whose tensors do not fit its recipe.
-SavedGenerator load_generator(const std::string& folder_or_file);
-// n samples [n, ...] in [−1, 1] from latent vectors drawn from `seed`; for a conditional
-// generator, of class `class_index` (−1: classes in turn, 0, 1, 2, ...).
-Tensor<float> generate_samples(SavedGenerator& generator, int64_t n, uint64_t seed,
-                               int64_t class_index);
-// Whether samples of this recipe's data are drawn as pictures: images, 2-D mixtures, and
-// tables with a data.picture_width. Other tables' samples are written as CSV instead.
-bool has_pictures(const Recipe& recipe, const Shape& sample_shape);
-void write_samples_table(const Tensor<float>& samples, const std::string& path);
-// A picture of samples as the run folder draws them: a grid of images, a grid of table rows
-// drawn as pictures, or a scatter plot of 2-D points. Writes PNG to `path`.
-void write_samples_picture(const Recipe& recipe, const Tensor<float>& samples, int64_t columns,
-                           const std::string& path);
 
 }  // namespace spar
