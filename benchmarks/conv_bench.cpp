@@ -41,8 +41,8 @@ std::string layer_size(const ConvLayer& l) {
 void conv_layer(const BenchOptions& opt, const ConvLayer& l, std::vector<BenchRow>& rows) {
   const double min_seconds = opt.quick ? 0.005 : 0.06;
   ConvGeometry g;
-  g.stride_h = g.stride_w = 2;
-  g.pad_h = g.pad_w = 1;
+  g.stride_rows = g.stride_cols = 2;
+  g.pad_rows = g.pad_cols = 1;
   const int64_t oh = conv_output_extent(l.h, kKernel, 2, 1, "conv bench");
   Rng rng(7, 7);
   // The convolution view: x [n, c, h, h], w [o, c, 4, 4], y [n, o, oh, oh].

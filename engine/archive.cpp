@@ -210,8 +210,8 @@ void Archive::rename(const std::string& from, const std::string& to) {
 }
 
 void Archive::put(const std::string& name, const Tensor<float>& value) {
-  if (!value.defined())
-    raise(ErrorKind::kBadArgument, "archive: record '" + name + "': undefined tensor");
+  if (!value.has_value())
+    raise(ErrorKind::kBadArgument, "archive: record '" + name + "': a tensor that holds no value");
   Tensor<float> copy = value.clone();
   Record& r = slot(name);
   r.kind = RecordKind::kFloat32Tensor;
@@ -219,8 +219,8 @@ void Archive::put(const std::string& name, const Tensor<float>& value) {
 }
 
 void Archive::put(const std::string& name, const Tensor<double>& value) {
-  if (!value.defined())
-    raise(ErrorKind::kBadArgument, "archive: record '" + name + "': undefined tensor");
+  if (!value.has_value())
+    raise(ErrorKind::kBadArgument, "archive: record '" + name + "': a tensor that holds no value");
   Tensor<double> copy = value.clone();
   Record& r = slot(name);
   r.kind = RecordKind::kFloat64Tensor;

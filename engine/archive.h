@@ -45,7 +45,7 @@ class Archive {
 
   // Adds a record, or replaces the record of that name in place (keeping its position).
   // Names are 1 to 65535 bytes of valid UTF-8; text must be valid UTF-8. Raises kBadArgument
-  // naming the record otherwise, or when the tensor is undefined.
+  // naming the record otherwise, or when the tensor holds no value.
   void put(const std::string& name, const Tensor<float>& value);
   void put(const std::string& name, const Tensor<double>& value);
   void put_int(const std::string& name, int64_t value);

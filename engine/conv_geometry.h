@@ -8,8 +8,8 @@ namespace spar {
 
 // Stride and zero padding per spatial axis (height, width).
 struct ConvGeometry {
-  int64_t stride_h = 1, stride_w = 1;
-  int64_t pad_h = 0, pad_w = 0;
+  int64_t stride_rows = 1, stride_cols = 1;
+  int64_t pad_rows = 0, pad_cols = 0;
 };
 
 // The output extent along one axis, from Dumoulin & Visin (2016), "A guide to convolution

@@ -169,8 +169,8 @@ std::vector<GradientCase> operation_gradient_cases() {
   };
   for (const ConvCase& k : conv_cases) {
     const ConvGeometry g = k.g;
-    const int64_t oh = conv_output_extent(k.x[2], k.w[2], g.stride_h, g.pad_h, "case");
-    const int64_t ow = conv_output_extent(k.x[3], k.w[3], g.stride_w, g.pad_w, "case");
+    const int64_t oh = conv_output_extent(k.x[2], k.w[2], g.stride_rows, g.pad_rows, "case");
+    const int64_t ow = conv_output_extent(k.x[3], k.w[3], g.stride_cols, g.pad_cols, "case");
     const Shape y{k.x[0], k.w[0], oh, ow};
     const int64_t h = k.x[2], w = k.x[3], kh = k.w[2], kw = k.w[3];
     c.check(std::string("convolution ") + k.label,

@@ -95,7 +95,7 @@ GradientCheckResult check_second_order(const GradientCase& c, const GradientChec
     Var<double> s;
     for (size_t i = 0; i < g.size(); ++i) {
       Var<double> term = sum(multiply(g[i], Var<double>(v[i])));
-      s = s.defined() ? add(s, term) : term;
+      s = s.has_value() ? add(s, term) : term;
     }
     for (const Var<double>& hv : tape.gradient(s, vars)) analytic.push_back(hv.value());
   }

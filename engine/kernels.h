@@ -110,7 +110,7 @@ Tensor<T> concatenate(const std::vector<Tensor<T>>& xs, int axis);
 
 // ---- 2-D convolution (NCHW), lowered to Eigen's GEMM (kernels_conv.cpp) ----
 
-// y[n,o,i,j] = Σ_{c,p,q} w[o,c,p,q] · x[n, c, i·s_h + p − pad_h, j·s_w + q − pad_w]
+// y[n,o,i,j] = Σ_{c,p,q} w[o,c,p,q] · x[n, c, i·s_h + p − pad_rows, j·s_w + q − pad_cols]
 // (cross-correlation, zero outside x). x: [N,C,H,W], w: [O,C,KH,KW] → [N,O,OH,OW].
 template <class T>
 Tensor<T> convolution(const Tensor<T>& x, const Tensor<T>& w, const ConvGeometry& g);
@@ -121,10 +121,11 @@ template <class T>
 Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const ConvGeometry& g,
                                  int64_t out_h, int64_t out_w);
 // The adjoint of convolution with respect to its weight: x: [N,C,H,W], dy: [N,O,OH,OW] →
-// [O,C,kernel_h,kernel_w] = Σ_n dy_n · columns(x_n)ᵀ, summed over n in a fixed order.
+// [O,C,kernel_rows,kernel_cols] = Σ_n dy_n · columns(x_n)ᵀ, summed over n in a fixed order.
 template <class T>
 Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
-                                      const ConvGeometry& g, int64_t kernel_h, int64_t kernel_w);
+                                      const ConvGeometry& g, int64_t kernel_rows,
+                                      int64_t kernel_cols);
 
 // ---- batch normalisation, per channel: axis 1 of [N, C] or [N, C, H, W] (kernels_norm.cpp) ----
 // Each channel's statistics are taken over every other axis, accumulated in double; the work

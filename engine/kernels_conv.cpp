@@ -89,10 +89,11 @@ using Operands = std::function<std::string()>;
 // Raises kBadShape naming `op` unless stride ≥ 1, padding ≥ 0 and kernel ≥ 1 on both axes.
 void check_geometry(const ConvGeometry& g, int64_t kh, int64_t kw, const char* op,
                     const Operands& operands) {
-  if (g.stride_h < 1 || g.stride_w < 1 || g.pad_h < 0 || g.pad_w < 0 || kh < 1 || kw < 1)
+  if (g.stride_rows < 1 || g.stride_cols < 1 || g.pad_rows < 0 || g.pad_cols < 0 || kh < 1 ||
+      kw < 1)
     raise(ErrorKind::kBadShape,
-          std::string(op) + ": stride " + extents(g.stride_h, g.stride_w) + ", padding " +
-              extents(g.pad_h, g.pad_w) + ", kernel " + extents(kh, kw) +
+          std::string(op) + ": stride " + extents(g.stride_rows, g.stride_cols) + ", padding " +
+              extents(g.pad_rows, g.pad_cols) + ", kernel " + extents(kh, kw) +
               " (need stride ≥ 1, padding ≥ 0, kernel ≥ 1; " + operands() + ")");
 }
 
@@ -110,18 +111,19 @@ ConvShape conv_shape(const Shape& x, const Shape& w, const ConvGeometry& g, cons
                                     " expects " + std::to_string(w[1]));
   ConvShape s{x[0], x[1], x[2], x[3], w[0], w[2], w[3], 0, 0, g};
   check_geometry(g, s.kh, s.kw, op, operands);
-  if (s.h + 2 * g.pad_h < s.kh || s.w + 2 * g.pad_w < s.kw)
+  if (s.h + 2 * g.pad_rows < s.kh || s.w + 2 * g.pad_cols < s.kw)
     raise(ErrorKind::kBadShape, std::string(op) + ": a " + extents(s.kh, s.kw) +
                                     " kernel does not fit a " + extents(s.h, s.w) +
-                                    " input with padding " + extents(g.pad_h, g.pad_w) + " (" +
-                                    operands() + ")");
-  s.oh = conv_output_extent(s.h, s.kh, g.stride_h, g.pad_h, op);
-  s.ow = conv_output_extent(s.w, s.kw, g.stride_w, g.pad_w, op);
+                                    " input with padding " + extents(g.pad_rows, g.pad_cols) +
+                                    " (" + operands() + ")");
+  s.oh = conv_output_extent(s.h, s.kh, g.stride_rows, g.pad_rows, op);
+  s.ow = conv_output_extent(s.w, s.kw, g.stride_cols, g.pad_cols, op);
   return s;
 }
 
 std::string geometry_text(const ConvGeometry& g) {
-  return "stride " + extents(g.stride_h, g.stride_w) + " and padding " + extents(g.pad_h, g.pad_w);
+  return "stride " + extents(g.stride_rows, g.stride_cols) + " and padding " +
+         extents(g.pad_rows, g.pad_cols);
 }
 
 // Samples per GEMM: about 2^19 column entries (a couple of MB) for a wide, efficient product,
@@ -155,15 +157,15 @@ struct Phases {
   std::vector<int64_t> taps;  // per tap ki·KW + kj, its first input within a channel's planes
 
   explicit Phases(const ConvShape& s)
-      : ph(std::min(s.g.stride_h, s.kh)),
-        pw(std::min(s.g.stride_w, s.kw)),
-        rows(s.oh + (s.kh - 1) / s.g.stride_h),
-        cols(s.ow + (s.kw - 1) / s.g.stride_w),
+      : ph(std::min(s.g.stride_rows, s.kh)),
+        pw(std::min(s.g.stride_cols, s.kw)),
+        rows(s.oh + (s.kh - 1) / s.g.stride_rows),
+        cols(s.ow + (s.kw - 1) / s.g.stride_cols),
         taps(static_cast<size_t>(s.kh * s.kw)) {
     for (int64_t ki = 0; ki < s.kh; ++ki)
       for (int64_t kj = 0; kj < s.kw; ++kj)
-        taps[ki * s.kw + kj] = offset(0, ki % s.g.stride_h, kj % s.g.stride_w) +
-                               (ki / s.g.stride_h) * cols + kj / s.g.stride_w;
+        taps[ki * s.kw + kj] = offset(0, ki % s.g.stride_rows, kj % s.g.stride_cols) +
+                               (ki / s.g.stride_rows) * cols + kj / s.g.stride_cols;
   }
   int64_t plane() const { return rows * cols; }
   int64_t channel() const { return ph * pw * plane(); }  // one channel's planes
@@ -171,14 +173,14 @@ struct Phases {
   // Whether every input position lies in some plane (so merge_phases writes all of x): all
   // stride phases are present (kernel ≥ stride) and the planes reach the last row and column.
   bool covers_input(const ConvShape& s) const {
-    return ph == s.g.stride_h && pw == s.g.stride_w &&
-           (s.h - 1 + s.g.pad_h) / s.g.stride_h < rows &&
-           (s.w - 1 + s.g.pad_w) / s.g.stride_w < cols;
+    return ph == s.g.stride_rows && pw == s.g.stride_cols &&
+           (s.h - 1 + s.g.pad_rows) / s.g.stride_rows < rows &&
+           (s.w - 1 + s.g.pad_cols) / s.g.stride_cols < cols;
   }
   // Whether split_phases_in_pairs and merge_phases_in_pairs apply: width stride 2 with both
   // column phases present, an even width, and every input column inside the planes.
   bool pairs(const ConvShape& s) const {
-    return s.g.stride_w == 2 && pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_w) / 2 < cols;
+    return s.g.stride_cols == 2 && pw == 2 && s.w % 2 == 0 && (s.w - 1 + s.g.pad_cols) / 2 < cols;
   }
   int64_t offset(int64_t c, int64_t a, int64_t b) const {
     return c * channel() + (a * pw + b) * plane();
@@ -189,20 +191,20 @@ struct Phases {
 // the zero padding is the same for every sample, so the caller zeroes the planes once and
 // reuses them (a per-row fill of one or two padding values compiled to a memset call per row,
 // which cost more than the copy). kStride is the width stride when fixed at compile time
-// (0: s.g.stride_w).
+// (0: s.g.stride_cols).
 template <int kStride, class T>
 void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
-  const int64_t stride = kStride > 0 ? kStride : s.g.stride_w, cols = f.cols;
+  const int64_t stride = kStride > 0 ? kStride : s.g.stride_cols, cols = f.cols;
   for (int64_t b = 0; b < f.pw; ++b) {
     int64_t lo, hi;
-    valid_range(cols, s.w, stride, s.g.pad_w, b, lo, hi);
+    valid_range(cols, s.w, stride, s.g.pad_cols, b, lo, hi);
     for (int64_t c = 0; c < s.c; ++c)
       for (int64_t a = 0; a < f.ph; ++a) {
         T* dst = planes + f.offset(c, a, b);
         for (int64_t i = 0; i < f.rows; ++i, dst += cols) {
-          const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
+          const int64_t ih = i * s.g.stride_rows + a - s.g.pad_rows;
           if (ih < 0 || ih >= s.h) continue;
-          const T* src = x + (c * s.h + ih) * s.w + b - s.g.pad_w;
+          const T* src = x + (c * s.h + ih) * s.w + b - s.g.pad_cols;
           for (int64_t j = lo; j < hi; ++j) dst[j] = src[j * stride];
         }
       }
@@ -215,13 +217,13 @@ void split_phases(const T* x, const ConvShape& s, const Phases& f, T* planes) {
 // div 2.
 template <class Move>
 void for_each_row_in_pairs(const ConvShape& s, const Phases& f, Move&& move) {
-  const int64_t pad = s.g.pad_w;
+  const int64_t pad = s.g.pad_cols;
   const int64_t even_phase = pad % 2, odd_phase = (pad + 1) % 2;
   const int64_t even_shift = pad / 2, odd_shift = (pad + 1) / 2;
   for (int64_t c = 0; c < s.c; ++c)
     for (int64_t a = 0; a < f.ph; ++a)
       for (int64_t i = 0; i < f.rows; ++i) {
-        const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
+        const int64_t ih = i * s.g.stride_rows + a - s.g.pad_rows;
         if (ih < 0 || ih >= s.h) continue;
         move((c * s.h + ih) * s.w, f.offset(c, a, even_phase) + i * f.cols + even_shift,
              f.offset(c, a, odd_phase) + i * f.cols + odd_shift);
@@ -249,17 +251,17 @@ void split_phases_in_pairs(const T* x, const ConvShape& s, const Phases& f, T* p
 // in at most one plane; those in none (a phase no tap reaches) are left as they are.
 template <int kStride, class T>
 void merge_phases(const T* planes, const ConvShape& s, const Phases& f, T* x) {
-  const int64_t stride = kStride > 0 ? kStride : s.g.stride_w, cols = f.cols;
+  const int64_t stride = kStride > 0 ? kStride : s.g.stride_cols, cols = f.cols;
   for (int64_t b = 0; b < f.pw; ++b) {
     int64_t lo, hi;
-    valid_range(cols, s.w, stride, s.g.pad_w, b, lo, hi);
+    valid_range(cols, s.w, stride, s.g.pad_cols, b, lo, hi);
     for (int64_t c = 0; c < s.c; ++c)
       for (int64_t a = 0; a < f.ph; ++a) {
         const T* src = planes + f.offset(c, a, b);
         for (int64_t i = 0; i < f.rows; ++i, src += cols) {
-          const int64_t ih = i * s.g.stride_h + a - s.g.pad_h;
+          const int64_t ih = i * s.g.stride_rows + a - s.g.pad_rows;
           if (ih < 0 || ih >= s.h) continue;
-          T* dst = x + (c * s.h + ih) * s.w + b - s.g.pad_w;
+          T* dst = x + (c * s.h + ih) * s.w + b - s.g.pad_cols;
           for (int64_t j = lo; j < hi; ++j) dst[j * stride] = src[j];
         }
       }
@@ -378,7 +380,7 @@ void samples_to_columns(const T* x, const ConvShape& s, const Phases& f, int64_t
       if constexpr (decltype(width)::value > 0)
         split_phases_in_pairs<decltype(width)::value>(sample, s, f, planes);
       else
-        with_fixed_stride(s.g.stride_w, [&](auto stride) {
+        with_fixed_stride(s.g.stride_cols, [&](auto stride) {
           split_phases<decltype(stride)::value>(sample, s, f, planes);
         });
     });
@@ -402,7 +404,7 @@ void columns_to_samples(const T* col, const ConvShape& s, const Phases& f, int64
       if constexpr (decltype(width)::value > 0)
         merge_phases_in_pairs<decltype(width)::value>(planes, s, f, sample);
       else
-        with_fixed_stride(s.g.stride_w, [&](auto stride) {
+        with_fixed_stride(s.g.stride_cols, [&](auto stride) {
           merge_phases<decltype(stride)::value>(planes, s, f, sample);
         });
     });
@@ -503,9 +505,9 @@ Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const C
   check_geometry(g, w.dim(2), w.dim(3), "transposed_convolution", operands);
   // The outputs a convolution maps onto z's extents: o' = s(i' − 1) + a + k − 2p with output
   // padding 0 <= a < s (Dumoulin & Visin 2016), and at least 1.
-  const int64_t lo_h = g.stride_h * (z.dim(2) - 1) + w.dim(2) - 2 * g.pad_h;
-  const int64_t lo_w = g.stride_w * (z.dim(3) - 1) + w.dim(3) - 2 * g.pad_w;
-  const int64_t hi_h = lo_h + g.stride_h - 1, hi_w = lo_w + g.stride_w - 1;
+  const int64_t lo_h = g.stride_rows * (z.dim(2) - 1) + w.dim(2) - 2 * g.pad_rows;
+  const int64_t lo_w = g.stride_cols * (z.dim(3) - 1) + w.dim(3) - 2 * g.pad_cols;
+  const int64_t hi_h = lo_h + g.stride_rows - 1, hi_w = lo_w + g.stride_cols - 1;
   if (z.dim(2) < 1 || z.dim(3) < 1 || out_h < std::max<int64_t>(1, lo_h) || out_h > hi_h ||
       out_w < std::max<int64_t>(1, lo_w) || out_w > hi_w)
     raise(ErrorKind::kBadShape,
@@ -544,7 +546,8 @@ Tensor<T> transposed_convolution(const Tensor<T>& z, const Tensor<T>& w, const C
 
 template <class T>
 Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
-                                      const ConvGeometry& g, int64_t kernel_h, int64_t kernel_w) {
+                                      const ConvGeometry& g, int64_t kernel_rows,
+                                      int64_t kernel_cols) {
   if (x.rank() != 4 || dy.rank() != 4)
     raise(ErrorKind::kBadShape,
           "convolution_weight_gradient: expects input [N, C, H, W] and output adjoint [N, O, OH, "
@@ -554,16 +557,16 @@ Tensor<T> convolution_weight_gradient(const Tensor<T>& x, const Tensor<T>& dy,
   const auto operands = [&] {
     return "input " + dims(x.shape()) + ", output adjoint " + dims(dy.shape());
   };
-  if (kernel_h < 1 || kernel_w < 1)
+  if (kernel_rows < 1 || kernel_cols < 1)
     raise(ErrorKind::kBadShape, "convolution_weight_gradient: kernel " +
-                                    extents(kernel_h, kernel_w) + " is not positive (" +
+                                    extents(kernel_rows, kernel_cols) + " is not positive (" +
                                     operands() + ")");
-  const Shape w_shape{dy.dim(1), x.dim(1), kernel_h, kernel_w};
+  const Shape w_shape{dy.dim(1), x.dim(1), kernel_rows, kernel_cols};
   const ConvShape s = conv_shape(x.shape(), w_shape, g, "convolution_weight_gradient", operands);
   if (dy.dim(0) != s.n || dy.dim(2) != s.oh || dy.dim(3) != s.ow)
     raise(ErrorKind::kBadShape, "convolution_weight_gradient: the output adjoint " +
                                     dims(dy.shape()) + " does not match input " + dims(x.shape()) +
-                                    " with a " + extents(kernel_h, kernel_w) + " kernel, " +
+                                    " with a " + extents(kernel_rows, kernel_cols) + " kernel, " +
                                     geometry_text(g) + ", which give " +
                                     Shape{s.n, s.o, s.oh, s.ow}.str());
   count_flops(s);

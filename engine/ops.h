@@ -93,10 +93,11 @@ Var<T> convolution(const Var<T>& x, const Var<T>& w, const ConvGeometry& g);
 template <class T>
 Var<T> transposed_convolution(const Var<T>& z, const Var<T>& w, const ConvGeometry& g,
                               int64_t out_h, int64_t out_w);
-// convolution's adjoint in its weight: x: [N,C,H,W], dy: [N,O,OH,OW] → [O,C,kernel_h,kernel_w].
+// convolution's adjoint in its weight: x: [N,C,H,W], dy: [N,O,OH,OW] →
+// [O,C,kernel_rows,kernel_cols].
 template <class T>
 Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
-                                   int64_t kernel_h, int64_t kernel_w);
+                                   int64_t kernel_rows, int64_t kernel_cols);
 
 // ---- batch normalisation (ops_norm.cpp) ----
 // Per channel (axis 1 of [N, C] or [N, C, H, W]): (x − mean)/√(variance + ε)·scale + shift,

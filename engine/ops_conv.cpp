@@ -63,10 +63,10 @@ Var<T> transposed_convolution(const Var<T>& z, const Var<T>& w, const ConvGeomet
 
 template <class T>
 Var<T> convolution_weight_gradient(const Var<T>& x, const Var<T>& dy, const ConvGeometry& g,
-                                   int64_t kernel_h, int64_t kernel_w) {
+                                   int64_t kernel_rows, int64_t kernel_cols) {
   return detail::record<T>(
       "convolution_weight_gradient", conv2d_weight_gradient_adjoint<T>, {x, dy},
-      kernels::convolution_weight_gradient(x.value(), dy.value(), g, kernel_h, kernel_w),
+      kernels::convolution_weight_gradient(x.value(), dy.value(), g, kernel_rows, kernel_cols),
       conv_args(g));
 }
 

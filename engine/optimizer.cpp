@@ -109,9 +109,10 @@ void Optimizer<T>::check_lists(const std::vector<Tensor<T>*>& params,
                                     std::to_string(state.size()) + " (the list must not change)");
   for (size_t i = 0; i < params.size(); ++i) {
     const std::string which = op + ": parameter " + std::to_string(i);
-    if (params[i] == nullptr || !params[i]->defined())
-      raise(ErrorKind::kBadArgument, which + " is null or undefined");
-    if (!grads[i].defined()) raise(ErrorKind::kBadArgument, which + " has an undefined gradient");
+    if (params[i] == nullptr || !params[i]->has_value())
+      raise(ErrorKind::kBadArgument, which + " is null or holds no value");
+    if (!grads[i].has_value())
+      raise(ErrorKind::kBadArgument, which + " has a gradient that holds no value");
     const Shape& p = params[i]->shape();
     if (grads[i].shape() != p)
       raise(ErrorKind::kBadShape, which + " has shape " + p.str() + " but its gradient has shape " +

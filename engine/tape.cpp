@@ -74,7 +74,7 @@ Var<T> TapeAccess<T>::append(Tape<T>& tape, const char* op, AdjointFn<T> adjoint
 
 template <class T>
 Var<T> Tape<T>::variable(const Tensor<T>& value) {
-  if (!value.defined()) raise(ErrorKind::kBadArgument, "variable: the tensor is undefined");
+  if (!value.has_value()) raise(ErrorKind::kBadArgument, "variable: the tensor holds no value");
   return detail::TapeAccess<T>::append(*this, "variable", nullptr, {}, value, detail::OpArgs{},
                                        Tensor<T>{});
 }
@@ -149,7 +149,7 @@ std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y,
   std::vector<bool> needs;
   std::vector<Var<T>> grad_in;
   for (int64_t i = y.id_; i >= first; --i) {
-    if (!relevant_[i] || !adjoint_[i].defined()) continue;
+    if (!relevant_[i] || !adjoint_[i].has_value()) continue;
     const detail::Node<T>& nd = node(i);  // stays valid while appending: chunked storage
     if (nd.adjoint) {
       const size_t k = nd.inputs.size();
@@ -164,16 +164,16 @@ std::vector<Var<T>> Tape<T>::vector_jacobian_product(const Var<T>& y,
         grad_in.assign(k, Var<T>());
         nd.adjoint(nd, output_of(i), adjoint_[i], needs, grad_in);
         for (size_t j = 0; j < k; ++j) {
-          if (!needs[j] || !grad_in[j].defined()) continue;
+          if (!needs[j] || !grad_in[j].has_value()) continue;
           Var<T>& acc = adjoint_[nd.inputs[j].id_];
-          acc = acc.defined() ? add(acc, grad_in[j]) : grad_in[j];  // invariant 3
+          acc = acc.has_value() ? add(acc, grad_in[j]) : grad_in[j];  // invariant 3
         }
       }
     }
     if (relevant_[i] != kTarget) adjoint_[i] = Var<T>();  // release early
   }
   for (const Var<T>& x : wrt) {
-    if (x.id_ < n && adjoint_[x.id_].defined())
+    if (x.id_ < n && adjoint_[x.id_].has_value())
       result.push_back(adjoint_[x.id_]);
     else
       result.emplace_back(Tensor<T>::zeros(x.shape()));
@@ -188,8 +188,8 @@ Var<T> record(const char* op, AdjointFn<T> adjoint, std::vector<Var<T>> inputs, 
               const OpArgs& args, Tensor<T> saved) {
   Tape<T>* tape = nullptr;
   for (const Var<T>& in : inputs) {
-    if (!in.defined())
-      raise(ErrorKind::kBadArgument, std::string(op) + ": an operand is undefined");
+    if (!in.has_value())
+      raise(ErrorKind::kBadArgument, std::string(op) + ": an operand holds no value");
     if (!in.recorded()) continue;
     if (tape && in.tape() != tape)
       raise(ErrorKind::kBadArgument,

@@ -49,11 +49,11 @@ class Tape;
 template <class T>
 class Var {
  public:
-  Var() = default;  // undefined
+  Var() = default;  // holds no value
   // A constant: a value that is not on any tape (gradients do not flow to it).
   explicit Var(Tensor<T> value) : value_(std::move(value)) {}
 
-  bool defined() const { return value_.defined(); }
+  bool has_value() const { return value_.has_value(); }
   const Tensor<T>& value() const { return value_; }
   const Shape& shape() const { return value_.shape(); }
   int64_t element_count() const { return value_.element_count(); }

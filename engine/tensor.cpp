@@ -81,7 +81,7 @@ Tensor<T> Tensor<T>::from_values(const Shape& shape, const std::vector<T>& value
 
 template <class T>
 T Tensor<T>::as_scalar() const {
-  if (!defined() || element_count() != 1)
+  if (!has_value() || element_count() != 1)
     raise(ErrorKind::kBadShape, "item: tensor of shape " + shape_.str() + " is not one element");
   return data_[0];
 }
@@ -104,7 +104,7 @@ T Tensor<T>::at(std::initializer_list<int64_t> index) const {
 
 template <class T>
 Tensor<T> Tensor<T>::clone() const {
-  if (!defined()) return Tensor();
+  if (!has_value()) return Tensor();
   Tensor t = uninitialised(shape_);
   std::memcpy(t.data_, data_, static_cast<size_t>(element_count()) * sizeof(T));
   return t;
@@ -148,7 +148,7 @@ long Tensor<T>::use_count() const {
 
 template <class T>
 bool equal(const Tensor<T>& a, const Tensor<T>& b) {
-  if (!a.defined() || !b.defined() || a.shape() != b.shape()) return false;
+  if (!a.has_value() || !b.has_value() || a.shape() != b.shape()) return false;
   return std::equal(a.data(), a.data() + a.element_count(), b.data());
 }
 

@@ -30,7 +30,7 @@ class Tensor {
  public:
   using Scalar = T;
 
-  Tensor() = default;  // undefined: no storage; defined() is false
+  Tensor() = default;  // no storage: has_value() is false
   Tensor(const Tensor& other);
   Tensor(Tensor&& other) noexcept;
   Tensor& operator=(const Tensor& other);
@@ -45,7 +45,7 @@ class Tensor {
   // Raises kBadShape when values.size() != shape.element_count().
   static Tensor from_values(const Shape& shape, const std::vector<T>& values);
 
-  bool defined() const { return block_ != nullptr; }
+  bool has_value() const { return block_ != nullptr; }
   const Shape& shape() const { return shape_; }
   int rank() const { return shape_.rank(); }
   int64_t dim(int axis) const {  // axis 0..rank-1 (SPAR_ASSERT, check.h)
@@ -68,7 +68,7 @@ class Tensor {
   template <class U>
   Tensor<U> cast() const;
 
-  long use_count() const;  // tensors sharing this storage, 0 when undefined
+  long use_count() const;  // tensors sharing this storage, 0 when it holds no value
 
  private:
   detail::BlockHeader* block_ = nullptr;

@@ -11,9 +11,9 @@ std::string geometry_text(const ConvOptions& o) {
   auto pair = [](int64_t a, int64_t b) {
     return a == b ? std::to_string(a) : std::to_string(a) + "×" + std::to_string(b);
   };
-  return std::to_string(o.kernel_h) + "×" + std::to_string(o.kernel_w) + ", stride " +
-         pair(o.geometry.stride_h, o.geometry.stride_w) + ", padding " +
-         pair(o.geometry.pad_h, o.geometry.pad_w);
+  return std::to_string(o.kernel_rows) + "×" + std::to_string(o.kernel_cols) + ", stride " +
+         pair(o.geometry.stride_rows, o.geometry.stride_cols) + ", padding " +
+         pair(o.geometry.pad_rows, o.geometry.pad_cols);
 }
 
 void require_channels(const Shape& x, int64_t channels, const std::string& who) {
@@ -32,10 +32,10 @@ Var<T> add_channel_bias(const Var<T>& y, Tensor<T>& bias, int64_t channels, Cont
 template <class T>
 Convolution<T>::Convolution(int64_t in, int64_t out, const ConvOptions& options, Rng& rng)
     : in_(in), out_(out), options_(options) {
-  const int64_t area = options.kernel_h * options.kernel_w;
+  const int64_t area = options.kernel_rows * options.kernel_cols;
   params_ =
-      WeightAndBias<T>(initial_weight<T>({out, in, options.kernel_h, options.kernel_w}, in * area,
-                                         out * area, options.init, rng),
+      WeightAndBias<T>(initial_weight<T>({out, in, options.kernel_rows, options.kernel_cols},
+                                         in * area, out * area, options.init, rng),
                        options.bias ? out : 0, options.spectral_normalisation, out, in * area, rng);
 }
 
@@ -68,10 +68,10 @@ template <class T>
 TransposedConvolution<T>::TransposedConvolution(int64_t in, int64_t out, const ConvOptions& options,
                                                 Rng& rng)
     : in_(in), out_(out), options_(options) {
-  const int64_t area = options.kernel_h * options.kernel_w;
+  const int64_t area = options.kernel_rows * options.kernel_cols;
   params_ =
-      WeightAndBias<T>(initial_weight<T>({in, out, options.kernel_h, options.kernel_w}, in * area,
-                                         out * area, options.init, rng),
+      WeightAndBias<T>(initial_weight<T>({in, out, options.kernel_rows, options.kernel_cols},
+                                         in * area, out * area, options.init, rng),
                        options.bias ? out : 0, options.spectral_normalisation, in, out * area, rng);
 }
 
@@ -80,11 +80,11 @@ Var<T> TransposedConvolution<T>::run(const Var<T>& x, Context<T>& ctx) {
   require_channels(x.shape(), in_, describe());
   const ConvGeometry& g = options_.geometry;
   const int64_t out_h =
-      conv_transpose_output_extent(x.shape()[2], options_.kernel_h, g.stride_h, g.pad_h,
-                                   options_.output_pad_h, "transposed_convolution");
+      conv_transpose_output_extent(x.shape()[2], options_.kernel_rows, g.stride_rows, g.pad_rows,
+                                   options_.output_pad_rows, "transposed_convolution");
   const int64_t out_w =
-      conv_transpose_output_extent(x.shape()[3], options_.kernel_w, g.stride_w, g.pad_w,
-                                   options_.output_pad_w, "transposed_convolution");
+      conv_transpose_output_extent(x.shape()[3], options_.kernel_cols, g.stride_cols, g.pad_cols,
+                                   options_.output_pad_cols, "transposed_convolution");
   const Var<T> y = transposed_convolution(x, params_.weight_for(ctx), g, out_h, out_w);
   return params_.has_bias() ? add_channel_bias(y, params_.bias, out_, ctx) : y;
 }

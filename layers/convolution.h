@@ -11,11 +11,11 @@
 namespace spar {
 
 struct ConvOptions {
-  int64_t kernel_h = 3, kernel_w = 3;  // window size. Default 3×3.
-  ConvGeometry geometry;               // stride and zero padding. Default stride 1, no padding.
-  int64_t output_pad_h = 0, output_pad_w = 0;  // transposed convolution only: extra rows and
-                                               // columns at the end, 0 <= a < stride
-  bool bias = true;                            // a learned offset per output channel. Default on.
+  int64_t kernel_rows = 3, kernel_cols = 3;  // window size. Default 3×3.
+  ConvGeometry geometry;  // stride and zero padding. Default stride 1, no padding.
+  int64_t output_pad_rows = 0, output_pad_cols = 0;  // transposed convolution only: extra rows and
+                                                     // columns at the end, 0 <= a < stride
+  bool bias = true;                     // a learned offset per output channel. Default on.
   Init init = Init::kDcganNormal;       // the weight's initial distribution; the bias starts at 0
   bool spectral_normalisation = false;  // divide the weight by its largest singular value
 };

@@ -76,20 +76,20 @@ std::vector<GradientCase> layer_gradient_cases() {
   c.check("convolution 2→3, 3×3, stride 1, padding 1", make<Convolution<double>>(2, 3, conv, r),
           c.any({2, 2, 5, 4}), true);
   ConvOptions strided = conv;
-  strided.kernel_h = strided.kernel_w = 4;
+  strided.kernel_rows = strided.kernel_cols = 4;
   strided.geometry = {2, 2, 1, 1};
   strided.spectral_normalisation = true;
   c.check("convolution 3→2, 4×4, stride 2, spectral normalisation",
           make<Convolution<double>>(3, 2, strided, r), c.any({2, 3, 6, 6}), false);
   strided.spectral_normalisation = false;
   ConvOptions up = conv;
-  up.kernel_h = up.kernel_w = 4;
+  up.kernel_rows = up.kernel_cols = 4;
   up.geometry = {2, 2, 1, 1};
   c.check("transposed convolution 3→2, 4×4, stride 2",
           make<TransposedConvolution<double>>(3, 2, up, r), c.any({2, 3, 3, 3}), true);
   ConvOptions up_pad = conv;
   up_pad.geometry = {2, 2, 1, 1};
-  up_pad.output_pad_h = up_pad.output_pad_w = 1;
+  up_pad.output_pad_rows = up_pad.output_pad_cols = 1;
   up_pad.bias = false;
   c.check("transposed convolution 2→2, 3×3, stride 2, output padding 1",
           make<TransposedConvolution<double>>(2, 2, up_pad, r), c.any({1, 2, 3, 2}), true);

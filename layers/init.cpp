@@ -20,18 +20,6 @@ Tensor<T> initial_weight(const Shape& shape, int64_t fan_in, int64_t fan_out, In
   return Tensor<T>();
 }
 
-const char* to_string(Init init) {
-  switch (init) {
-    case Init::kDcganNormal:
-      return "dcgan-normal";
-    case Init::kGlorotUniform:
-      return "glorot-uniform";
-    case Init::kHeNormal:
-      return "he-normal";
-  }
-  return "?";
-}
-
 template Tensor<float> initial_weight(const Shape&, int64_t, int64_t, Init, Rng&);
 template Tensor<double> initial_weight(const Shape&, int64_t, int64_t, Init, Rng&);
 

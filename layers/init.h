@@ -19,6 +19,4 @@ enum class Init {
 template <class T>
 Tensor<T> initial_weight(const Shape& shape, int64_t fan_in, int64_t fan_out, Init init, Rng& rng);
 
-const char* to_string(Init init);
-
 }  // namespace spar

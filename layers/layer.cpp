@@ -20,8 +20,8 @@ std::string name_in_format_1(const std::string& old_name, const Shape& shape) {
       {"bias", "offset"},
       {"scale", "scale"},
       {"shift", "shift"},
-      {"running_mean", "tracked_mean"},
-      {"running_variance", "tracked_variance"},
+      {"running_mean", "population_mean"},
+      {"running_variance", "population_variance"},
       {"spectral_u", "singular_left"},
       {"spectral_v", "singular_right"},
       {"table", "table"},
@@ -79,7 +79,7 @@ std::vector<Tensor<T>> parameter_gradients(const Var<T>& loss, const Context<T>&
     for (size_t k = 0; k < where.size(); ++k) grads[where[k]] = g[k].value();
   }
   for (size_t i = 0; i < params.size(); ++i)
-    if (!grads[i].defined()) grads[i] = Tensor<T>::zeros(params[i].tensor->shape());
+    if (!grads[i].has_value()) grads[i] = Tensor<T>::zeros(params[i].tensor->shape());
   return grads;
 }
 

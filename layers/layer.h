@@ -53,7 +53,8 @@ class Context {
   Var<T> use(Tensor<T>& parameter);
   // Makes `parameter` stand for `v` in this step (gradient checks feed their own variables).
   void bind(Tensor<T>& parameter, const Var<T>& v) { bound_[&parameter] = v; }
-  // The variable `parameter` was given in this step, or an undefined Var if it was not used.
+  // The variable `parameter` was given in this step, or a Var that holds no value if it was not
+  // used.
   Var<T> variable_of(const Tensor<T>& parameter) const;
 
  private:
@@ -69,7 +70,7 @@ class Layer {
  public:
   virtual ~Layer() = default;
   virtual Var<T> run(const Var<T>& x, Context<T>& ctx) = 0;
-  // Appends the trained parameters, named "<prefix>.<name>" (or "<name>" for an empty prefix).
+  // Appends the trained parameters, named "<prefix>/<name>" (or "<name>" for an empty prefix).
   virtual void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out) {
     (void)prefix;
     (void)out;
@@ -85,9 +86,9 @@ class Layer {
 
 // Names of model tensors (docs/file-formats.md, "Model tensors in an archive"): the path of
 // layer names from the network down, then the tensor's role, joined by '/', as
-// "critic/down2/filters" or "generator/norm0/tracked_mean". Roles: "matrix" (a dense layer's
+// "critic/down2/filters" or "generator/norm0/population_mean". Roles: "matrix" (a dense layer's
 // weight), "filters" (a convolution's), "offset" (a bias), "scale" and "shift" (batch
-// normalisation's), "tracked_mean" and "tracked_variance" (its statistics for sampling),
+// normalisation's), "population_mean" and "population_variance" (its statistics for sampling),
 // "singular_left" and "singular_right" (spectral normalisation's vectors u and v), "table"
 // (a class embedding). These names reach saved files: rename one only with a new run format
 // and a mapping from the old names (name_in_format_1).

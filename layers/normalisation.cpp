@@ -30,10 +30,12 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
     if (m < 2)
       raise(ErrorKind::kBadShape,
             describe() + ": a training batch needs two or more values per channel, got " + s.str());
-    // Without the affine step, scale 1 and shift 0 as constants (they get no gradient).
-    const Var<T> gamma =
-        options_.affine ? ctx.use(scale_) : Var<T>(Tensor<T>::full({channels_}, T(1)));
-    const Var<T> beta = options_.affine ? ctx.use(shift_) : Var<T>(Tensor<T>::zeros({channels_}));
+    // Without a learned scale and shift: scale 1 and shift 0 as constants (they get no gradient).
+    const Var<T> gamma = options_.learn_scale_and_shift
+                             ? ctx.use(scale_)
+                             : Var<T>(Tensor<T>::full({channels_}, T(1)));
+    const Var<T> beta =
+        options_.learn_scale_and_shift ? ctx.use(shift_) : Var<T>(Tensor<T>::zeros({channels_}));
     Tensor<T> batch;  // [2, C]: mean, biased variance
     Var<T> y = batch_normalise(x, gamma, beta, options_.epsilon, &batch);
     const double r = ctx.statistics_pass() ? 1.0 : options_.running_rate,
@@ -48,14 +50,14 @@ Var<T> BatchNormalisation<T>::run(const Var<T>& x, Context<T>& ctx) {
   // Inference: the running statistics, constants.
   const Var<T> mean(running_mean_.reshape(stat)), variance(running_variance_.reshape(stat));
   Var<T> normalised = divide(subtract(x, mean), sqrt(add_scalar(variance, options_.epsilon)));
-  if (!options_.affine) return normalised;
+  if (!options_.learn_scale_and_shift) return normalised;
   return add(multiply(normalised, reshape(ctx.use(scale_), stat)), reshape(ctx.use(shift_), stat));
 }
 
 template <class T>
 void BatchNormalisation<T>::collect_parameters(const std::string& prefix,
                                                std::vector<NamedTensor<T>>& out) {
-  if (!options_.affine) return;
+  if (!options_.learn_scale_and_shift) return;
   out.push_back({join_name(prefix, "scale"), &scale_});
   out.push_back({join_name(prefix, "shift"), &shift_});
 }
@@ -63,8 +65,8 @@ void BatchNormalisation<T>::collect_parameters(const std::string& prefix,
 template <class T>
 void BatchNormalisation<T>::collect_state(const std::string& prefix,
                                           std::vector<NamedTensor<T>>& out) {
-  out.push_back({join_name(prefix, "tracked_mean"), &running_mean_});
-  out.push_back({join_name(prefix, "tracked_variance"), &running_variance_});
+  out.push_back({join_name(prefix, "population_mean"), &running_mean_});
+  out.push_back({join_name(prefix, "population_variance"), &running_variance_});
 }
 
 template <class T>

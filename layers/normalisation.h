@@ -8,10 +8,10 @@
 namespace spar {
 
 struct BatchNormalisationOptions {
-  double epsilon = 1e-5;      // added to the variance before the square root. Default 1e-5.
-  double running_rate = 0.1;  // weight of the newest batch in the running statistics:
-                              // running ← (1 − r)·running + r·batch. Default 0.1.
-  bool affine = true;         // learn a scale γ (starts at 1) and shift β (starts at 0)
+  double epsilon = 1e-5;              // added to the variance before the square root. Default 1e-5.
+  double running_rate = 0.1;          // weight of the newest batch in the running statistics:
+                                      // running ← (1 − r)·running + r·batch. Default 0.1.
+  bool learn_scale_and_shift = true;  // learn a scale γ (starts at 1) and shift β (starts at 0)
 };
 
 // Normalises each channel over the batch (and the spatial axes for [N, C, H, W] input):
@@ -20,7 +20,8 @@ struct BatchNormalisationOptions {
 // the running unbiased variance m/(m−1)·σ²_B (Algorithm 2); evaluation steps normalise with
 // those. A statistics pass (Context::set_statistics_pass) normalises with the batch's
 // statistics and replaces the running ones with them (r = 1). Accepts [N, C] and [N, C, H, W].
-// Parameters "scale", "shift"; state "tracked_mean", "tracked_variance" (the running statistics).
+// Parameters "scale", "shift"; state "population_mean", "population_variance" (the running
+// statistics).
 template <class T>
 class BatchNormalisation final : public Layer<T> {
  public:

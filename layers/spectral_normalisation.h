@@ -21,7 +21,7 @@ class SpectralNormaliser {
   SpectralNormaliser() = default;
   SpectralNormaliser(int64_t rows, int64_t cols, Rng& rng);
 
-  bool enabled() const { return u_.defined(); }
+  bool enabled() const { return u_.has_value(); }
   // w / σ(w), advancing the power iteration first when ctx.training().
   Var<T> apply(const Var<T>& w, Context<T>& ctx);
   // σ from the latest apply() (for monitoring); 0 before the first.

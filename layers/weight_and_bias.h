@@ -18,11 +18,11 @@ struct WeightAndBias {
                 int64_t rows, int64_t cols, Rng& rng);
   // The step's weight variable, divided by its spectral norm when enabled.
   Var<T> weight_for(Context<T>& ctx);
-  bool has_bias() const { return bias.defined(); }
+  bool has_bias() const { return bias.has_value(); }
   void collect_parameters(const std::string& prefix, std::vector<NamedTensor<T>>& out);
   void collect_state(const std::string& prefix, std::vector<NamedTensor<T>>& out);
 
-  Tensor<T> weight, bias;  // bias undefined when the layer has none
+  Tensor<T> weight, bias;  // bias holds no value when the layer has none
   SpectralNormaliser<T> normaliser;
 };
 

@@ -51,14 +51,14 @@ GanPair make_mlp_pair(const MlpPairOptions& o, Rng& rng) {
   critic_dense.spectral_normalisation = o.spectral_normalisation;
   int64_t in = o.latent + o.classes;
   for (int i = 1; i <= o.depth; ++i) {
-    pair.generator->emplace<Dense<float>>(numbered("dense", i), in, o.width, plain, rng);
+    pair.generator->emplace<Dense<float>>(numbered("hidden", i), in, o.width, plain, rng);
     pair.generator->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kRelu);
     in = o.width;
   }
   pair.generator->emplace<Dense<float>>("out", in, o.data, plain, rng);
   in = o.data + o.classes;
   for (int i = 1; i <= o.depth; ++i) {
-    pair.critic->emplace<Dense<float>>(numbered("dense", i), in, o.width, critic_dense, rng);
+    pair.critic->emplace<Dense<float>>(numbered("hidden", i), in, o.width, critic_dense, rng);
     pair.critic->emplace<Nonlinearity<float>>(numbered("act", i), NonlinearityKind::kLeakyRelu,
                                               0.2);
     in = o.width;
@@ -84,9 +84,9 @@ GanPair make_dcgan_pair(const DcganPairOptions& o, Rng& rng) {
   GanPair pair{std::make_unique<S>(), std::make_unique<S>(), o.latent,
                Shape{o.channels, o.image_size, o.image_size}, o.classes};
   ConvOptions up;
-  up.kernel_h = up.kernel_w = 4;
-  up.geometry.stride_h = up.geometry.stride_w = 2;
-  up.geometry.pad_h = up.geometry.pad_w = 1;
+  up.kernel_rows = up.kernel_cols = 4;
+  up.geometry.stride_rows = up.geometry.stride_cols = 2;
+  up.geometry.pad_rows = up.geometry.pad_cols = 1;
   up.bias = false;                                 // followed by batch normalisation
   const int64_t top = o.width << (doublings - 1);  // channels of the smallest map
 

@@ -8,7 +8,7 @@
 //     between, tanh at the output); the discriminator halves the size with 4×4 stride-2
 //     convolutions (leaky relu 0.2; batch normalisation except after the first, or spectral
 //     normalisation instead) and ends in a dense layer to one score.
-// Weights start N(0, 0.02²) as in DCGAN. Names: "generator.*" and "critic.*" in checkpoints.
+// Weights start N(0, 0.02²) as in DCGAN. Names: "generator/..." and "critic/..." in checkpoints.
 //
 // Class-conditional variants (classes > 0) follow the conditional GAN of Mirza and Osindero
 // 2014: the generator sees [z, one_hot(y)] and the critic sees the sample with one_hot(y)

@@ -20,7 +20,7 @@ void require_path(const Recipe& r) {
     bad_recipe("data.path", "\"" + r.data.path + "\" does not exist (moved or removed?)");
 }
 
-Dataset load_swatches(const Recipe& r) {
+Dataset swatch_data(const Recipe& r) {
   SwatchOptions o;
   o.count = r.data.swatch_count;
   o.size = r.data.image_size;
@@ -28,24 +28,24 @@ Dataset load_swatches(const Recipe& r) {
   return make_swatches(o);
 }
 
-Dataset load_images(const Recipe& r) {
+Dataset image_data(const Recipe& r) {
   require_path(r);
   if (r.data.channels == 2) bad_recipe("data.channels", "must be 1 or 3, not 2");
-  ImageFolderOptions o;
+  ImageLoadOptions o;
   o.size = r.data.image_size;
   o.channels = r.data.channels;
   o.pixel_limit = r.data.pixel_limit;
-  return load_image_folder(r.data.path, o);
+  return load_images(r.data.path, o);
 }
 
-Dataset load_idx(const Recipe& r) {
+Dataset idx_data(const Recipe& r) {
   require_path(r);
   if (!r.data.class_names.empty() && r.data.labels.empty())
     bad_recipe("data.class_names", "names classes, but data.labels gives no label file");
   return load_idx_dataset(r.data.path, r.data.labels, r.data.class_names);
 }
 
-Dataset load_csv_table(const Recipe& r) {
+Dataset table_data(const Recipe& r) {
   require_path(r);
   TableOptions o;
   o.label_column = r.data.labelled ? r.data.label_column : TableOptions::kNoLabel;
@@ -72,13 +72,13 @@ const std::vector<DataSourceInfo>& data_sources() {
       {"grid25", "the built-in grid of 25 Gaussians in the plane of Lin et al. 2018", grid_of_25,
        nullptr, nullptr},
       {"swatches", "the built-in procedural fabric swatches", nullptr,
-       "the swatch families are the classes", load_swatches},
+       "the swatch families are the classes", swatch_data},
       {"images", "a folder of PNG, JPEG or BMP images at data.path", nullptr,
-       "put each class in its own sub-folder", load_images},
+       "put each class in its own sub-folder", image_data},
       {"idx", "IDX files such as Fashion-MNIST's at data.path and data.labels", nullptr,
-       "give the label file as data.labels", load_idx},
+       "give the label file as data.labels", idx_data},
       {"table", "a numeric CSV table at data.path", nullptr,
-       "set data.labelled and data.label_column", load_csv_table},
+       "set data.labelled and data.label_column", table_data},
   };
   return all;
 }

@@ -28,7 +28,7 @@ struct Dataset {
   std::string origin;                    // what it was made from, for logs ("folder ./x")
 
   int64_t size() const {
-    return samples.defined() && samples.shape().rank() > 0 ? samples.shape()[0] : 0;
+    return samples.has_value() && samples.shape().rank() > 0 ? samples.shape()[0] : 0;
   }
   int64_t classes() const { return static_cast<int64_t>(class_names.size()); }
   Shape sample_shape() const;  // the shape of one sample, samples.shape() without dim 0
@@ -82,7 +82,7 @@ class DatasetSource final : public DataSource {
 // huge label asking for millions of class names.
 constexpr int64_t kMaxClasses = 65536;
 
-struct ImageFolderOptions {
+struct ImageLoadOptions {
   // Output side in pixels, 1 to 16384. The centre square of each image (its side the image's
   // shorter side; an odd excess leaves the extra column or row on the right or bottom) is
   // resampled to size × size: a box filter (area average) when shrinking, a triangle filter
@@ -110,7 +110,7 @@ struct ImageFolderOptions {
 // class folders; a class folder without images; a file that is not PNG, JPEG or BMP by its
 // first bytes, has more pixels than the limit, or does not decode (decode_image_file in
 // recipes/image_files.h).
-Dataset load_image_folder(const std::string& folder, const ImageFolderOptions& options);
+Dataset load_images(const std::string& folder, const ImageLoadOptions& options);
 
 // An IDX file of unsigned bytes [N, H, W] (read_idx, plain or gzipped) as samples
 // [N, 1, H, W] with values v / 127.5 − 1, optionally with an IDX label file (empty string:

@@ -96,7 +96,7 @@ std::vector<fs::path> images_beneath(const fs::path& folder) {
 }
 
 // Decodes `path` and writes its [channels, size, size] sample, values in [−1, 1], to `out`
-// (see ImageFolderOptions for the geometry and the conversions).
+// (see ImageLoadOptions for the geometry and the conversions).
 void load_image(const std::string& path, int channels, int size, int64_t pixel_limit, float* out) {
   const DecodedImage image = decode_image_file(path, pixel_limit, "data.pixel_limit");
   const int w = image.width, h = image.height, n = image.channels;
@@ -197,13 +197,13 @@ std::string number_text(double v) {
 
 }  // namespace
 
-Dataset load_image_folder(const std::string& folder, const ImageFolderOptions& options) {
+Dataset load_images(const std::string& folder, const ImageLoadOptions& options) {
   if (options.size < 1 || options.size > kMaxImageSide)
-    raise(ErrorKind::kBadArgument, "load_image_folder: size " + std::to_string(options.size) +
+    raise(ErrorKind::kBadArgument, "load_images: size " + std::to_string(options.size) +
                                        " is outside 1.." + std::to_string(kMaxImageSide));
   if (options.channels != 1 && options.channels != 3)
     raise(ErrorKind::kBadArgument,
-          "load_image_folder: channels must be 1 or 3, got " + std::to_string(options.channels));
+          "load_images: channels must be 1 or 3, got " + std::to_string(options.channels));
   std::error_code ec;
   const fs::file_status status = fs::status(folder, ec);
   if (status.type() == fs::file_type::not_found) fail(folder, "no such folder");

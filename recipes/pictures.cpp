@@ -19,11 +19,11 @@ uint8_t pixel_byte(float v) {
 
 Picture tile_pictures(const Tensor<float>& images, int64_t columns, int64_t gap, int64_t zoom) {
   const Shape& s = images.shape();
-  if (!images.defined() || s.rank() != 4 || s[0] < 1 || (s[1] != 1 && s[1] != 3) || s[2] < 1 ||
+  if (!images.has_value() || s.rank() != 4 || s[0] < 1 || (s[1] != 1 && s[1] != 3) || s[2] < 1 ||
       s[3] < 1)
     raise(ErrorKind::kBadShape,
           "tile_pictures: images must be [N, 1 or 3, H, W], got " +
-              (images.defined() ? s.str() : std::string("an undefined tensor")));
+              (images.has_value() ? s.str() : std::string("a tensor that holds no value")));
   if (columns < 1 || gap < 0 || zoom < 1)
     raise(ErrorKind::kBadArgument, "tile_pictures: columns " + std::to_string(columns) + ", gap " +
                                        std::to_string(gap) + ", zoom " + std::to_string(zoom) +
@@ -76,10 +76,11 @@ void blend(Picture& p, int64_t x, int64_t y, Rgb colour, double opacity) {
 Picture scatter_picture(const Tensor<float>& points,
                         const std::vector<std::pair<double, double>>& marks, double half_extent,
                         int64_t side) {
-  if (!points.defined() || points.rank() != 2 || points.dim(1) != 2)
+  if (!points.has_value() || points.rank() != 2 || points.dim(1) != 2)
     raise(ErrorKind::kBadShape,
           "scatter_picture: points must be [N, 2], got " +
-              (points.defined() ? points.shape().str() : std::string("an undefined tensor")));
+              (points.has_value() ? points.shape().str()
+                                  : std::string("a tensor that holds no value")));
   if (!std::isfinite(half_extent) || half_extent <= 0 || side < 16 || side > 8192)
     raise(ErrorKind::kBadArgument, "scatter_picture: half extent " + std::to_string(half_extent) +
                                        ", side " + std::to_string(side) +

@@ -2,6 +2,7 @@
 
 #include <cmath>
 #include <cstdio>
+#include <sstream>
 
 #include "engine/error.h"
 #include "engine/kernels.h"
@@ -202,6 +203,22 @@ void TrainingRun::fit_statistics_to_average() {
   run_generator(pair_, Var<float>(draw_latent(n, rng)), labels, pass);
 }
 
+namespace {
+// Format 1 named the mlp model's hidden layers "dense1", "dense2", ...; they are "hidden1",
+// "hidden2", ... now (architectures.cpp). Other layer names did not change.
+std::string layers_renamed_since_format_1(const std::string& name) {
+  std::string out, part;
+  std::stringstream parts(name);
+  while (std::getline(parts, part, kNameSeparator)) {
+    const bool numbered_dense = part.size() > 5 && part.rfind("dense", 0) == 0 &&
+                                part.find_first_not_of("0123456789", 5) == std::string::npos;
+    out += (out.empty() ? "" : std::string(1, kNameSeparator)) +
+           (numbered_dense ? "hidden" + part.substr(5) : part);
+  }
+  return out;
+}
+}  // namespace
+
 int64_t upgrade_run_records(Archive& a) {
   if (a.contains("run.format")) {
     const int64_t format = a.integer("run.format");
@@ -223,6 +240,7 @@ int64_t upgrade_run_records(Archive& a) {
       now = join_name("average", name_in_format_1(name.substr(8), a.tensor_shape(name)));
     else if (tensor && (starts("generator.") || starts("critic.")))
       now = name_in_format_1(name, a.tensor_shape(name));
+    if (tensor && now != name) now = layers_renamed_since_format_1(now);
     if (now == name) continue;
     if (a.contains(now))
       raise(ErrorKind::kCorruptCheckpoint, a.source() + ": records '" + name + "' and '" + now +

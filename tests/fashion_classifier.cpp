@@ -178,8 +178,8 @@ Tensor<float> gather(const Split& split, const std::vector<int64_t>& order, int6
 
 void build(spar::LayerStack<float>& model, const RunOptions& o, spar::Rng& rng) {
   spar::ConvOptions conv;
-  conv.kernel_h = conv.kernel_w = 3;
-  conv.geometry.pad_h = conv.geometry.pad_w = 1;
+  conv.kernel_rows = conv.kernel_cols = 3;
+  conv.geometry.pad_rows = conv.geometry.pad_cols = 1;
   conv.init = spar::Init::kHeNormal;
   conv.bias = !o.batch_norm;  // batch normalisation's shift takes the bias's place
   spar::DenseOptions dense;

@@ -105,13 +105,14 @@ bool flag(long long v) {
   return v == 1;
 }
 
-// The first four integer parameters of a convolution case: stride_h stride_w pad_h pad_w.
+// The first four integer parameters of a convolution case: stride_rows stride_cols pad_rows
+// pad_cols.
 spar::ConvGeometry geometry(const std::vector<long long>& p) {
   spar::ConvGeometry g;
-  g.stride_h = p[0];
-  g.stride_w = p[1];
-  g.pad_h = p[2];
-  g.pad_w = p[3];
+  g.stride_rows = p[0];
+  g.stride_cols = p[1];
+  g.pad_rows = p[2];
+  g.pad_cols = p[3];
   return g;
 }
 

@@ -32,10 +32,10 @@ int64_t relation_transposed(int64_t i, int64_t k, int64_t s, int64_t p, int64_t 
 
 ConvGeometry geometry(int64_t sh, int64_t sw, int64_t ph, int64_t pw) {
   ConvGeometry g;
-  g.stride_h = sh;
-  g.stride_w = sw;
-  g.pad_h = ph;
-  g.pad_w = pw;
+  g.stride_rows = sh;
+  g.stride_cols = sw;
+  g.pad_rows = ph;
+  g.pad_cols = pw;
   return g;
 }
 
@@ -192,8 +192,8 @@ TEST_CASE("convolution and transposed_convolution and convolution_weight_gradien
     const Tensor<double> x = rng.uniform<double>(c.x, -1, 1), w = rng.uniform<double>(c.w, -1, 1);
     const int64_t n = c.x[0], ch = c.x[1], h = c.x[2], wd = c.x[3];
     const int64_t o = c.w[0], kh = c.w[2], kw = c.w[3];
-    const int64_t oh = conv_output_extent(h, kh, c.g.stride_h, c.g.pad_h, "test");
-    const int64_t ow = conv_output_extent(wd, kw, c.g.stride_w, c.g.pad_w, "test");
+    const int64_t oh = conv_output_extent(h, kh, c.g.stride_rows, c.g.pad_rows, "test");
+    const int64_t ow = conv_output_extent(wd, kw, c.g.stride_cols, c.g.pad_cols, "test");
     const Tensor<double> z = rng.uniform<double>({n, o, oh, ow}, -1, 1);
 
     const double forward = inner(kernels::convolution(x, w, c.g), z);

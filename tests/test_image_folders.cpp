@@ -89,7 +89,7 @@ TEST_CASE("an image folder with class sub-folders: every mode and size, sorted, 
                          small.data()));  // beneath the class folder; already 16 × 16
 
   SECTION("RGB") {
-    const Dataset d = load_image_folder(root, {16, 3});
+    const Dataset d = load_images(root, {16, 3});
     REQUIRE(d.samples.shape() == Shape({8, 3, 16, 16}));
     CHECK(d.class_names == std::vector<std::string>{"apple", "zebra"});
     CHECK(d.labels == std::vector<int64_t>{0, 0, 0, 0, 1, 1, 1, 1});
@@ -106,7 +106,7 @@ TEST_CASE("an image folder with class sub-folders: every mode and size, sorted, 
     check_solid(d, 7, {12, 34, 56}, kExact);  // palette entry 1
   }
   SECTION("grayscale by BT.601 luma") {
-    const Dataset d = load_image_folder(root, {16, 1});
+    const Dataset d = load_images(root, {16, 1});
     REQUIRE(d.samples.shape() == Shape({8, 1, 16, 16}));
     check_solid(d, 0, {200}, kExact);
     check_solid(d, 1, {100}, kExact);
@@ -175,7 +175,7 @@ TEST_CASE("loose images: unlabelled, a black/white edge lands where the centre c
   REQUIRE(stbi_write_png(dir.file("loose/p2.png").c_str(), 8, 12, 1, tall.data(), 8));
   write_bytes(dir.file("loose/notes.csv"), "1,2,3\n");
 
-  const Dataset d = load_image_folder(root, {16, 1});
+  const Dataset d = load_images(root, {16, 1});
   REQUIRE(d.samples.shape() == Shape({2, 1, 16, 16}));
   CHECK(d.labels.empty());
   CHECK(d.class_names.empty());
@@ -187,14 +187,14 @@ TEST_CASE("loose images: unlabelled, a black/white edge lands where the centre c
 TEST_CASE("image folder errors name the folder or file at fault", "[datasets]") {
   ScratchDir dir;
   const std::string missing = dir.file("no-such-folder");
-  require_bad_input([&] { load_image_folder(missing, {}); }, missing);
+  require_bad_input([&] { load_images(missing, {}); }, missing);
 
   const std::string plain_file = write_bytes(dir.file("a-file.png"), "x");
-  require_bad_input([&] { load_image_folder(plain_file, {}); }, plain_file);
+  require_bad_input([&] { load_images(plain_file, {}); }, plain_file);
 
   const std::string empty = dir.folder("empty");
   write_bytes(dir.file("empty/readme.txt"), "no images here");
-  require_bad_input([&] { load_image_folder(empty, {}); }, empty);
+  require_bad_input([&] { load_images(empty, {}); }, empty);
 
   // Random bytes behind a .png name (a fixed-seed generator, for a fixed test).
   const std::string corrupt = dir.folder("corrupt");
@@ -203,28 +203,28 @@ TEST_CASE("image folder errors name the folder or file at fault", "[datasets]") 
   Rng rng(5, 5);
   for (int i = 0; i < 300; ++i) noise.push_back(static_cast<char>(rng.next_u32()));
   const std::string bad_png = write_bytes(dir.file("corrupt/noise.png"), noise);
-  require_bad_input([&] { load_image_folder(corrupt, {}); }, bad_png);
+  require_bad_input([&] { load_images(corrupt, {}); }, bad_png);
 
   // A PNG whose header declares a width of 0.
   const std::string zero = dir.folder("zero");
   const std::string zero_png =
       write_bytes(dir.file("zero/flat.png"), palette_png(0, 4, {{1, 2, 3}}, {}));
-  require_bad_input([&] { load_image_folder(zero, {}); }, zero_png);
+  require_bad_input([&] { load_images(zero, {}); }, zero_png);
 
   const std::string mixed = dir.folder("mixed");
   write_png(dir.file("mixed/loose.png"), 8, 8, {50});
   write_png(dir.file("mixed/cats/c.png"), 8, 8, {50});
-  require_bad_input([&] { load_image_folder(mixed, {}); }, mixed);
+  require_bad_input([&] { load_images(mixed, {}); }, mixed);
 
   const std::string hollow = dir.folder("hollow");
   write_png(dir.file("hollow/cats/c.png"), 8, 8, {50});
   const std::string no_dogs = dir.folder("hollow/dogs");
-  require_bad_input([&] { load_image_folder(hollow, {}); }, no_dogs);
+  require_bad_input([&] { load_images(hollow, {}); }, no_dogs);
 
   const std::string fine = dir.folder("fine");
   write_png(dir.file("fine/a.png"), 8, 8, {50});
-  CHECK(error_kind_of([&] { load_image_folder(fine, {16, 2}); }) == ErrorKind::kBadArgument);
-  CHECK(error_kind_of([&] { load_image_folder(fine, {0, 3}); }) == ErrorKind::kBadArgument);
+  CHECK(error_kind_of([&] { load_images(fine, {16, 2}); }) == ErrorKind::kBadArgument);
+  CHECK(error_kind_of([&] { load_images(fine, {0, 3}); }) == ErrorKind::kBadArgument);
 }
 
 TEST_CASE("hostile image files are refused from their first bytes, before decoding", "[datasets]") {
@@ -240,7 +240,7 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   const std::string hdr = alone(
       "sky.png", "#?RADIANCE\nFORMAT=32-bit_rle_rgbe\n\n-Y 2 +X 2\n" + std::string(16, '\x02'));
   std::string message;
-  CHECK(error_kind_of([&] { load_image_folder(folder_of(hdr), {}); }, &message) ==
+  CHECK(error_kind_of([&] { load_images(folder_of(hdr), {}); }, &message) ==
         ErrorKind::kBadInputFile);
   CHECK(message == hdr + ": not a PNG, JPEG or BMP image (it starts with 23 3f 52 41 44 49 41 4e)");
 
@@ -248,7 +248,7 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   // 20000 × 20000 (only its IHDR chunk, PNG specification §11.2.2) took 5.1 GB.
   const std::string bmp = alone("big.bmp", bmp_header(16384, 16384));
   require_bad_input(
-      [&] { load_image_folder(folder_of(bmp), {}); },
+      [&] { load_images(folder_of(bmp), {}); },
       bmp + ": 16384x16384 pixels, more than the limit of 40000000 (data.pixel_limit)");
   std::string ihdr = "IHDR";
   for (uint32_t v : {20000u, 20000u})
@@ -259,25 +259,25 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   std::string png = "\x89PNG\r\n\x1a\n" + std::string("\0\0\0\x0d", 4) + ihdr;
   for (int b = 3; b >= 0; --b) png.push_back(static_cast<char>((crc >> (8 * b)) & 0xFF));
   const std::string big_png = alone("big.png", png);
-  require_bad_input([&] { load_image_folder(folder_of(big_png), {}); },
+  require_bad_input([&] { load_images(folder_of(big_png), {}); },
                     big_png + ": 20000x20000 pixels, more than the limit");
 
   // Found by fuzzing: a 54-byte BMP claiming 3 × 8,323,074 pixels (under the limit) was
   // decoded at full size from zeros read past its end. 24-bit rows of 3 pixels take 12 bytes.
   const std::string short_bmp = alone("short.bmp", bmp_header(3, 8323074));
-  require_bad_input([&] { load_image_folder(folder_of(short_bmp), {}); },
+  require_bad_input([&] { load_images(folder_of(short_bmp), {}); },
                     short_bmp + ": truncated: its header claims 3x8323074 uncompressed pixels, " +
                         std::to_string(54 + 12 * 8323074) + " bytes, but the file holds 54");
 
   // The limit is adjustable: an 8 × 8 image passes a limit of 64 pixels, not one of 63.
   const std::string small = alone("small.png", "");
   write_png(small, 8, 8, {50});
-  ImageFolderOptions tight;
+  ImageLoadOptions tight;
   tight.size = 8;
   tight.pixel_limit = 64;
-  CHECK(load_image_folder(folder_of(small), tight).samples.shape() == Shape{1, 3, 8, 8});
+  CHECK(load_images(folder_of(small), tight).samples.shape() == Shape{1, 3, 8, 8});
   tight.pixel_limit = 63;
-  require_bad_input([&] { load_image_folder(folder_of(small), tight); },
+  require_bad_input([&] { load_images(folder_of(small), tight); },
                     small + ": 8x8 pixels, more than the limit of 63");
 
   // Regression: a DHT segment whose 16 code counts add up to more than 256 made the JPEG
@@ -294,7 +294,7 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
                     std::string(16, '\xff');  // 16 × 255 = 4,080 codes
   const std::string hostile = jpeg.substr(0, 2) + dht + jpeg.substr(2);
   const std::string bad_jpeg = alone("tables.jpg", hostile);
-  require_bad_input([&] { load_image_folder(folder_of(bad_jpeg), {}); },
+  require_bad_input([&] { load_images(folder_of(bad_jpeg), {}); },
                     bad_jpeg +
                         ": damaged JPEG: a Huffman table (DHT segment at byte 2) declares "
                         "4080 codes, more than the 256 a table can hold");
@@ -303,7 +303,7 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   const std::string behind =
       jpeg.substr(0, 2) + std::string("\xff\xe0\x00\x03\x00a", 6) + dht + jpeg.substr(2);
   const std::string stray_jpeg = alone("stray.jpg", behind);
-  require_bad_input([&] { load_image_folder(folder_of(stray_jpeg), {}); },
+  require_bad_input([&] { load_images(folder_of(stray_jpeg), {}); },
                     stray_jpeg +
                         ": damaged JPEG: a Huffman table (DHT segment at byte 8) declares "
                         "4080 codes");

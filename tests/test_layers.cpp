@@ -29,7 +29,7 @@ namespace {
 LayerStack<float> small_critic(Rng& rng) {
   LayerStack<float> net;
   ConvOptions conv;
-  conv.kernel_h = conv.kernel_w = 4;
+  conv.kernel_rows = conv.kernel_cols = 4;
   conv.geometry = {2, 2, 1, 1};
   auto& block = net.emplace<LayerStack<float>>("block1");
   block.emplace<Convolution<float>>("conv", 3, 8, conv, rng);
@@ -51,8 +51,8 @@ TEST_CASE("parameters and state tensors carry stable hierarchical names", "[laye
                                           "critic/out/matrix", "critic/out/offset"});
   std::vector<std::string> state;
   for (const auto& b : net.all_state("critic")) state.push_back(b.name);
-  CHECK(state == std::vector<std::string>{"critic/block1/norm/tracked_mean",
-                                            "critic/block1/norm/tracked_variance"});
+  CHECK(state == std::vector<std::string>{"critic/block1/norm/population_mean",
+                                          "critic/block1/norm/population_variance"});
   CHECK_THROWS_AS(net.emplace<Nonlinearity<float>>("out", NonlinearityKind::kTanh), Error);
 }
 

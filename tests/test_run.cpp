@@ -7,6 +7,7 @@
 #include <sstream>
 
 #include "recipes/run_folder.h"
+#include "recipes/run_parts.h"
 #include "recipes/saved_generator.h"
 #include "recipes/swatches.h"
 #include "tests/support.h"
@@ -15,8 +16,8 @@ namespace spar {
 namespace {
 
 using testing::error_kind_of;
-using testing::same_bits;
 using testing::read_bytes;
+using testing::same_bits;
 using testing::ScratchDir;
 namespace fs = std::filesystem;
 
@@ -289,6 +290,14 @@ TEST_CASE("a foreign state.spar and an edited recipe.toml are refused on resume"
   // Keys that describe what was trained cannot change.
   CHECK(error_kind_of([&] { Run::reopen(b, {"model.width=32"}); }, &message) ==
         ErrorKind::kBadArgument);
+}
+
+TEST_CASE("a conditional model on a source without labels is refused naming the key", "[run]") {
+  Recipe r = small_points();  // ring8: endless points, no classes
+  r.model.conditional = true;
+  std::string message;
+  CHECK(error_kind_of([&] { make_data_source(r); }, &message) == ErrorKind::kBadRecipe);
+  CHECK(message == "model.conditional: needs labelled data, and ring8 has no labels");
 }
 
 TEST_CASE("data paths are stored absolute, a moved data file names data.path", "[run]") {

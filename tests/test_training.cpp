@@ -77,7 +77,7 @@ TEST_CASE("a saved state refuses another architecture, naming the tensor", "[tra
   std::string message;
   CHECK(testing::error_kind_of([&] { other.load(archive); }, &message) ==
         ErrorKind::kCorruptCheckpoint);
-  CHECK_THAT(message, Catch::Contains("generator/dense1/matrix"));
+  CHECK_THAT(message, Catch::Contains("generator/hidden1/matrix"));
 }
 
 TEST_CASE("DCGAN-style pairs make and judge images of 28, 32 and 64 pixels",

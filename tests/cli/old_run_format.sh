@@ -32,7 +32,7 @@ cmp -s step3.csv "$fixture/samples-step3.csv" || fail "samples differ from the o
 # inspect shows the records under their current names, and says the file is older.
 "$spar" inspect run/state.spar >inspect.txt || fail "inspect of the old state"
 grep -q 'written in run format 1' inspect.txt || fail "inspect does not say the format is 1"
-for name in generator/up1/filters generator/norm0/tracked_mean critic/score/matrix \
+for name in generator/up1/filters generator/norm0/population_mean critic/score/matrix \
   critic/down1/singular_left critic/down2/offset average/generator/project/matrix \
   optimiser/critic/m/0; do
   grep -q "^$name " inspect.txt || fail "inspect does not show $name"
@@ -40,6 +40,15 @@ done
 if grep -q -E '\.(weight|bias|running_mean|running_variance|spectral_u|spectral_v) ' inspect.txt; then
   fail "inspect shows format-1 names"
 fi
+
+# Format-1 mlp generators (the fuzz seeds written by the format-1 spar: points and a
+# conditional table) load: every record must map to a tensor of today's networks, or
+# load_generator refuses the file naming the first one that does not.
+corpus=$here/../fuzz/corpus/generator
+for old in points-format-1.spar table_conditional-format-1.spar; do
+  "$spar" sample "$corpus/$old" -n 4 --seed 2 -o "${old%.spar}.csv" >/dev/null 2>err.txt ||
+    fail "sample of the format-1 generator $old: $(cat err.txt)"
+done
 
 # Resuming continues the old run exactly; the new checkpoints are in the current format.
 "$spar" resume run --steps 5 --quiet || fail "resume of the old run"

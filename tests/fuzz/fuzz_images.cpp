@@ -1,4 +1,4 @@
-// Fuzz target: images through spar's loader (load_image_folder, recipes/datasets.h), on a
+// Fuzz target: images through spar's loader (load_images, recipes/datasets.h), on a
 // temporary folder that holds one file. The first input byte b chooses the file's name and
 // the options: x.png, x.jpg or x.bmp by b % 3, 3 or 1 channels by (b / 3) % 2, an output side
 // of 1, 7 or 32 pixels by (b / 6) % 3; the rest of the input is the file's bytes. An accepted
@@ -21,17 +21,16 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   const uint8_t choice = data[0];
   for (const char* name : kNames) fuzz::remove_scratch(name);
   fuzz::write_scratch(kNames[choice % 3], data + 1, size - 1);
-  ImageFolderOptions options;
+  ImageLoadOptions options;
   options.channels = (choice / 3) % 2 == 0 ? 3 : 1;
   options.size = kSides[(choice / 6) % 3];
   options.pixel_limit = int64_t{1} << 20;
-  fuzz::run_reader("load_image_folder", [&] {
-    const Dataset d = load_image_folder(fuzz::scratch_dir() + "/images", options);
+  fuzz::run_reader("load_images", [&] {
+    const Dataset d = load_images(fuzz::scratch_dir() + "/images", options);
     if (d.samples.shape() != Shape{1, options.channels, options.size, options.size}) {
-      fuzz::finding("load_image_folder: one image gave samples of shape " +
-                    d.samples.shape().str());
+      fuzz::finding("load_images: one image gave samples of shape " + d.samples.shape().str());
     }
-    fuzz::require_unit_range(d.samples, "load_image_folder");
+    fuzz::require_unit_range(d.samples, "load_images");
   });
   return 0;
 }
