@@ -105,6 +105,7 @@ std::string image_format_of(const unsigned char* p, size_t n) {
 // and as many symbols as the counts add up to, at most 256 (T.81 B.2.4.2).
 std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
   if (image_format_of(p, n) != "JPEG") return "";
+  bool defined[2][4] = {};  // [DC 0, AC 1][table 0..3]: set by a DHT segment so far
   size_t i = 2;
   while (i < n) {
     if (p[i] != 0xFF) {  // a stray byte between segments: the decoder skips it, so do we
@@ -125,6 +126,7 @@ std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
       for (size_t q = i + 2; q < end;) {
         if (end - q < 17)
           return "a Huffman table (DHT segment at byte " + std::to_string(i - 2) + ") is cut short";
+        if ((p[q] >> 4) <= 1 && (p[q] & 15) <= 3) defined[p[q] >> 4][p[q] & 15] = true;
         size_t codes = 0;
         for (size_t k = 1; k <= 16; ++k) codes += p[q + k];
         if (codes > 256)
@@ -134,6 +136,26 @@ std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
         if (q > end)
           return "a Huffman table (DHT segment at byte " + std::to_string(i - 2) +
                  ") runs past its segment";
+      }
+    }
+    if (marker == 0xDA) {
+      // The tables a scan decodes with must have been defined before it (T.81 B.2.3): the
+      // decoder would read an undefined one from uninitialised memory. A scan of spectral
+      // selection Ss..Se with high approximation bit Ah needs the DC table of each component
+      // when it decodes DC values (Ss = 0, first pass Ah = 0), and its AC table when Se > 0.
+      const size_t count = end - i > 2 ? p[i + 2] : 0;
+      const size_t tail = i + 3 + 2 * count;  // Ss, Se, Ah|Al follow the components
+      if (count > 0 && tail + 3 <= end) {
+        const unsigned ss = p[tail], se = p[tail + 1], ah = p[tail + 2] >> 4;
+        for (size_t c = 0; c < count; ++c) {
+          const unsigned dc = p[i + 4 + 2 * c] >> 4, ac = p[i + 4 + 2 * c] & 15;
+          const bool needs_dc = ss == 0 && ah == 0 && dc <= 3, needs_ac = se > 0 && ac <= 3;
+          if ((needs_dc && !defined[0][dc]) || (needs_ac && !defined[1][ac]))
+            return "the scan at byte " + std::to_string(i - 2) + " decodes with Huffman table " +
+                   (needs_dc && !defined[0][dc] ? "DC " + std::to_string(dc)
+                                                : "AC " + std::to_string(ac)) +
+                   ", which no DHT segment before it defines";
+        }
       }
     }
     i = end;

@@ -36,9 +36,10 @@ DecodedImage decode_image_file(const std::string& path, int64_t pixel_limit,
 
 // "PNG", "JPEG" or "BMP" for bytes that start like such a file, else "" (exposed for tests).
 std::string image_format_of(const unsigned char* bytes, size_t size);
-// The first invalid JPEG Huffman table in `bytes` (a DHT segment whose code counts add up to
-// more than 256, or that runs past its segment) as a message, or "" when every table is valid
-// or the bytes are not a JPEG file (exposed for tests).
+// The first invalid use of JPEG Huffman tables in `bytes` as a message: a DHT segment whose
+// code counts add up to more than 256 or that runs past its segment, or a scan that decodes
+// with a table no DHT segment before it defines; "" when there is none or the bytes are not
+// a JPEG file (exposed for tests).
 std::string check_jpeg_huffman_tables(const unsigned char* bytes, size_t size);
 
 // A message when an uncompressed BMP file is shorter than the rows its header claims (the

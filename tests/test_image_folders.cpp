@@ -307,6 +307,21 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
                     stray_jpeg +
                         ": damaged JPEG: a Huffman table (DHT segment at byte 8) declares "
                         "4080 codes");
+  // Found by an hour of fuzzing: a scan whose component names a Huffman table that no DHT
+  // segment defined (T.81 B.2.3 allows tables 0 to 3) made the decoder read the table from
+  // uninitialised memory, past its arrays (UBSan). Here the first component of the encoder's
+  // own scan is pointed at AC table 2 (its tables are 0 and 1).
+  const size_t sos = jpeg.find("\xff\xda");
+  REQUIRE(sos != std::string::npos);
+  std::string undefined = jpeg;
+  undefined[sos + 6] = static_cast<char>((undefined[sos + 6] & 0xF0) | 2);  // Td|Ta of component 1
+  const auto* up = reinterpret_cast<const unsigned char*>(undefined.data());
+  CHECK(check_jpeg_huffman_tables(up, undefined.size()) ==
+        "the scan at byte " + std::to_string(sos) +
+            " decodes with Huffman table AC 2, which no DHT segment before it defines");
+  const std::string undefined_jpeg = alone("undefined.jpg", undefined);
+  require_bad_input([&] { load_images(folder_of(undefined_jpeg), {}); },
+                    undefined_jpeg + ": damaged JPEG: the scan at byte " + std::to_string(sos));
 }
 
 }  // namespace
