@@ -119,6 +119,32 @@ SavedGenerator load_generator(const std::string& folder_or_file) {
   return g;
 }
 
+Tensor<float> latent_vectors(const SavedGenerator& g, int64_t n, uint64_t seed) {
+  Rng rng(seed, derive_stream(seed, "sampling"));
+  return rng.normal<float>({n, g.pair.latent});
+}
+
+Tensor<float> generate_from(SavedGenerator& g, const Tensor<float>& z,
+                            const std::vector<int64_t>& labels) {
+  if (z.shape().rank() != 2 || z.shape()[1] != g.pair.latent)
+    raise(ErrorKind::kBadShape, "latent vectors of shape " + z.shape().str() + ", expected [n, " +
+                                    std::to_string(g.pair.latent) + "]");
+  const int64_t classes = g.pair.classes, n = z.shape()[0];
+  if (classes > 0 && static_cast<int64_t>(labels.size()) != n)
+    raise(ErrorKind::kBadArgument,
+          std::to_string(labels.size()) + " labels for " + std::to_string(n) + " latent vectors");
+  if (classes == 0 && !labels.empty())
+    raise(ErrorKind::kBadArgument, "this generator is not class-conditional; pass no labels");
+  for (int64_t label : labels)
+    if (label < 0 || label >= classes)
+      raise(ErrorKind::kBadArgument, "class " + std::to_string(label) +
+                                         " does not exist; the generator has classes 0 to " +
+                                         std::to_string(classes - 1));
+  NoRecordScope sampling;
+  Context<float> eval(nullptr, false);
+  return run_generator(g.pair, Var<float>(z), labels, eval).value();
+}
+
 Tensor<float> generate_samples(SavedGenerator& g, int64_t n, uint64_t seed, int64_t class_index) {
   const int64_t classes = g.pair.classes;
   if (class_index >= classes && classes > 0)
@@ -127,13 +153,9 @@ Tensor<float> generate_samples(SavedGenerator& g, int64_t n, uint64_t seed, int6
                                        std::to_string(classes - 1));
   if (class_index >= 0 && classes == 0)
     raise(ErrorKind::kBadArgument, "this generator is not class-conditional; leave out the class");
-  Rng rng(seed, derive_stream(seed, "sampling"));
-  const Tensor<float> z = rng.normal<float>({n, g.pair.latent});
   std::vector<int64_t> labels = labels_in_turn(n, classes);
   if (class_index >= 0) labels.assign(static_cast<size_t>(n), class_index);
-  NoRecordScope sampling;
-  Context<float> eval(nullptr, false);
-  return run_generator(g.pair, Var<float>(z), labels, eval).value();
+  return generate_from(g, latent_vectors(g, n, seed), labels);
 }
 
 }  // namespace spar

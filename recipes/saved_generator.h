@@ -33,6 +33,14 @@ SavedGenerator load_generator(const std::string& folder_or_file);
 // generator, of class `class_index` (−1: classes in turn, 0, 1, 2, ...).
 Tensor<float> generate_samples(SavedGenerator& generator, int64_t n, uint64_t seed,
                                int64_t class_index);
+// The latent vectors generate_samples draws for `seed`: [n, generator.pair.latent]. Vector i
+// depends on the seed and i alone (Philox counters), so the first n of a larger draw are these.
+Tensor<float> latent_vectors(const SavedGenerator& generator, int64_t n, uint64_t seed);
+// Samples [n, ...] from given latent vectors z [n, generator.pair.latent] and, for a
+// conditional generator, one class per sample in `labels` (empty otherwise). Raises
+// kBadShape or kBadArgument naming what does not fit.
+Tensor<float> generate_from(SavedGenerator& generator, const Tensor<float>& z,
+                            const std::vector<int64_t>& labels);
 
 // ---- The records that say what a run file's networks are for ----
 

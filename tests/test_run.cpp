@@ -146,6 +146,16 @@ TEST_CASE("a saved generator samples, one from another architecture is refused",
   const Tensor<float> samples = generate_samples(g, 5, 3, 2);
   CHECK(samples.shape() == Shape{5, 3, 32, 32});
   CHECK(same_bits(samples, generate_samples(g, 5, 3, 2)));  // the seed fixes the samples
+  // The same from the latent vectors and labels given by hand (the in-process API).
+  const Tensor<float> z = latent_vectors(g, 5, 3);
+  CHECK(z.shape() == Shape{5, g.pair.latent});
+  CHECK(same_bits(generate_from(g, z, {2, 2, 2, 2, 2}), samples));
+  CHECK(same_bits(latent_vectors(g, 8, 3).leading_slice(0, 5), z));  // vector i: seed and i alone
+  CHECK(error_kind_of([&] { generate_from(g, z, {2, 2}); }) == ErrorKind::kBadArgument);
+  CHECK(error_kind_of([&] { generate_from(g, z, {2, 2, 2, 2, 99}); }) == ErrorKind::kBadArgument);
+  CHECK(error_kind_of([&] {
+          generate_from(g, latent_vectors(g, 5, 3).reshape({5, 1, g.pair.latent}), {2, 2, 2, 2, 2});
+        }) == ErrorKind::kBadShape);
   CHECK(error_kind_of([&] {
           generate_samples(g, 5, 3, static_cast<int64_t>(swatch_families().size()));
         }) == ErrorKind::kBadArgument);
