@@ -22,7 +22,8 @@ struct Subcommand {
 };
 
 Subcommand add_check_gradients(CLI::App& parent);
-Subcommand add_bench(CLI::App& parent);  // bench.cpp, or bench_absent.cpp without benchmarks
+Subcommand add_export(CLI::App& parent);  // cli/export.cpp
+Subcommand add_bench(CLI::App& parent);   // bench.cpp, or bench_absent.cpp without benchmarks
 std::vector<Subcommand> add_training_commands(CLI::App& parent);  // demo, train, resume
 std::vector<Subcommand> add_run_commands(CLI::App& parent);       // sample, evaluate, inspect
 

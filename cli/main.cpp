@@ -55,6 +55,7 @@ int main(int argc, char** argv) {
   app.option_defaults()->disable_flag_override();  // "--force=3" is refused, not read as true
   std::vector<spar::cli::Subcommand> subcommands = spar::cli::add_training_commands(app);
   for (const spar::cli::Subcommand& s : spar::cli::add_run_commands(app)) subcommands.push_back(s);
+  subcommands.push_back(spar::cli::add_export(app));
   subcommands.push_back(spar::cli::add_check_gradients(app));
   subcommands.push_back(spar::cli::add_bench(app));
   try {

@@ -13,6 +13,7 @@
 
 #include "engine/archive.h"
 #include "engine/error.h"
+#include "engine/random.h"
 #include "recipes/data_sources.h"
 #include "recipes/objectives.h"
 
@@ -522,6 +523,18 @@ std::string apply_setting(Recipe& recipe, const std::string& assignment, const s
   }
   assign(*key, *parsed.get("v"), recipe, origin);
   return key->name;
+}
+
+std::string text_hash(const std::string& text) {
+  const uint64_t h = detail::fnv1a_64(
+      detail::kFnv64Offset, reinterpret_cast<const unsigned char*>(text.data()), text.size());
+  char out[24];
+  std::snprintf(out, sizeof out, "%016llx", static_cast<unsigned long long>(h));
+  return out;
+}
+
+std::string recipe_hash(const Recipe& recipe) {
+  return text_hash(to_toml(recipe));
 }
 
 std::vector<std::string> differing_keys(const Recipe& a, const Recipe& b) {

@@ -101,6 +101,10 @@ std::string apply_setting(Recipe& recipe, const std::string& assignment, const s
 // Every key with its value, by section, with each key's meaning as a comment; parse_recipe
 // of the result gives `recipe` back.
 std::string to_toml(const Recipe& recipe);
+// FNV-1a 64-bit (engine/random.h) of a text, as 16 hex digits: a short name for it.
+std::string text_hash(const std::string& text);
+// text_hash of to_toml(recipe): the resolved recipe's name in run files and exported headers.
+std::string recipe_hash(const Recipe& recipe);
 // The keys whose values differ between two recipes, in key-list order, each as
 // "key (A → B)" with the values as TOML text.
 std::vector<std::string> differing_keys(const Recipe& a, const Recipe& b);

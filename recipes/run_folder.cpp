@@ -136,18 +136,6 @@ std::string new_run_id() {
   return text;
 }
 
-// FNV-1a, 64 bits, in hex: a short name for a text (the resolved recipe's).
-std::string text_hash(const std::string& text) {
-  uint64_t h = 0xcbf29ce484222325ull;
-  for (unsigned char c : text) h = (h ^ c) * 0x100000001b3ull;
-  char out[24];
-  std::snprintf(out, sizeof out, "%016llx", static_cast<unsigned long long>(h));
-  return out;
-}
-std::string recipe_hash(const Recipe& r) {
-  return text_hash(to_toml(r));
-}
-
 // recipe.toml as spar writes it: two comment lines, the first "# spar run <id>, recipe
 // <hash>: ...", then to_toml of the recipe, whose text_hash is <hash>. So a file spar wrote
 // and nobody edited is told from an edited one: its body still has the hash its header says.
