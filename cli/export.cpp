@@ -48,7 +48,7 @@ Subcommand add_export(CLI::App& parent) {
   CLI::App* app = parent.add_subcommand(
       "export",
       "Write a run's weight-averaged generator as one dependency-free C99 header: its weights,\n"
-      "its forward pass and spar's latent draw (mlp generators today).\n"
+      "its forward pass and spar's latent draw, for any run (points, tables, images).\n"
       "Example: spar export trained/ring8 --c-header ring8.h --prefix ring8");
   app->add_option("source", o->source, "Run folder or generator.spar file")->required();
   app->add_option("--c-header", o->header, "The header to write (.h)")->required();

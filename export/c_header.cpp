@@ -4,9 +4,12 @@
 #include <cctype>
 #include <cmath>
 #include <cstdio>
+#include <map>
 #include <sstream>
+#include <vector>
 
 #include "engine/error.h"
+#include "layers/normalisation.h"
 
 namespace spar {
 namespace {
@@ -49,43 +52,154 @@ std::string c_string(const std::string& s) {
   return out + "\"";
 }
 
-struct DenseLayer {
-  int64_t in = 0, out = 0;
-  const Tensor<float>* matrix = nullptr;  // [in, out]
-  const Tensor<float>* offset = nullptr;  // [out]
-  bool relu = false;                      // followed by relu
+enum class Activation { kNone, kRelu, kTanh };
+
+// One step of the generator's forward pass as the header computes it: a dense layer on a
+// vector, or a transposed convolution with 4x4 kernels, stride 2 and padding 1 (which
+// doubles the map's sides) on a [channels, height, width] map; weights with batch
+// normalisation already folded in.
+struct Step {
+  bool convolution = false;
+  int64_t in = 0, out = 0;        // dense: features; convolution: channels
+  int64_t height = 0, width = 0;  // convolution: the input map's sides
+  std::vector<float> weights;     // dense [in, out]; convolution [in, out, 4, 4]
+  std::vector<float> offset;      // [out]
+  Activation activation = Activation::kNone;
+  int64_t output_size() const { return convolution ? out * 4 * height * width : out; }
 };
 
-// The mlp generator's layers, read from its parameters: hidden1 ... hiddenD, then out, each
-// a matrix and an offset (recipes/architectures.cpp). Anything else is refused.
-std::vector<DenseLayer> mlp_layers(const SavedGenerator& g) {
-  std::vector<NamedTensor<float>> params = g.pair.generator->all_parameters("generator");
-  const int64_t depth = g.recipe.model.depth;
-  if (static_cast<int64_t>(params.size()) != 2 * (depth + 1))
-    raise(ErrorKind::kBadArgument, "export: the mlp generator has " +
-                                       std::to_string(params.size()) +
-                                       " parameter tensors, not the 2 per layer expected");
-  std::vector<DenseLayer> layers;
+// The generator's tensors by name, parameters and state alike.
+std::map<std::string, const Tensor<float>*> tensors_of(const SavedGenerator& g) {
+  std::map<std::string, const Tensor<float>*> named;
+  for (const NamedTensor<float>& t : g.pair.generator->all_parameters("generator"))
+    named[t.name] = t.tensor;
+  for (const NamedTensor<float>& t : g.pair.generator->all_state("generator"))
+    named[t.name] = t.tensor;
+  return named;
+}
+
+const Tensor<float>& need(const std::map<std::string, const Tensor<float>*>& named,
+                          const std::string& name, const Shape& shape) {
+  const auto it = named.find(name);
+  if (it == named.end() || it->second->shape() != shape)
+    raise(ErrorKind::kBadArgument, "export: the generator has no tensor '" + name + "' of shape " +
+                                       shape.str() +
+                                       " (an architecture the exporter does not know)");
+  return *it->second;
+}
+
+std::vector<float> values(const Tensor<float>& t) {
+  return std::vector<float>(t.data(), t.data() + t.element_count());
+}
+
+// The mlp generator: hidden1 ... hiddenD (dense, relu), then out (dense); architectures.cpp.
+std::vector<Step> mlp_plan(const SavedGenerator& g) {
+  const auto named = tensors_of(g);
+  std::vector<Step> steps;
+  int64_t in = g.pair.latent + g.pair.classes;
+  const int64_t depth = g.recipe.model.depth, width = g.recipe.model.width;
   for (int64_t i = 0; i <= depth; ++i) {
     const std::string layer =
         i < depth ? "generator/hidden" + std::to_string(i + 1) : "generator/out";
-    const NamedTensor<float>& m = params[static_cast<size_t>(2 * i)];
-    const NamedTensor<float>& b = params[static_cast<size_t>(2 * i + 1)];
-    if (m.name != layer + "/matrix" || b.name != layer + "/offset" ||
-        m.tensor->shape().rank() != 2 || b.tensor->shape() != Shape{m.tensor->shape()[1]})
-      raise(ErrorKind::kBadArgument,
-            "export: unexpected mlp generator tensors '" + m.name + "' and '" + b.name + "'");
-    layers.push_back({m.tensor->shape()[0], m.tensor->shape()[1], m.tensor, b.tensor, i < depth});
+    Step s;
+    s.in = in;
+    s.out = i < depth ? width : g.sample_shape.element_count();
+    s.weights = values(need(named, layer + "/matrix", Shape{s.in, s.out}));
+    s.offset = values(need(named, layer + "/offset", Shape{s.out}));
+    s.activation = i < depth ? Activation::kRelu : Activation::kNone;
+    steps.push_back(s);
+    in = s.out;
   }
-  return layers;
+  return steps;
 }
 
-void array(std::ostringstream& out, const std::string& name, const Tensor<float>& t) {
-  out << "static const float " << name << "[" << t.element_count() << "] = {";
-  for (int64_t i = 0; i < t.element_count(); ++i) {
-    if (!std::isfinite(t.data()[i]))
+// Evaluation-mode batch normalisation y = γ(x − μ)/√(σ² + ε) + β folded into the step before
+// it (common practice): per output channel c, the weights times s = γ/√(σ² + ε) and the
+// offset (b − μ)·s + β, computed in double and rounded once. ε as the layer uses it.
+void fold_normalisation(Step& step, const std::map<std::string, const Tensor<float>*>& named,
+                        const std::string& norm, int64_t channels, int64_t per_channel) {
+  const Shape c{channels};
+  const Tensor<float>& scale = need(named, norm + "/scale", c);
+  const Tensor<float>& shift = need(named, norm + "/shift", c);
+  const Tensor<float>& mean = need(named, norm + "/population_mean", c);
+  const Tensor<float>& variance = need(named, norm + "/population_variance", c);
+  const double epsilon = BatchNormalisationOptions{}.epsilon;
+  if (step.offset.empty()) step.offset.assign(static_cast<size_t>(step.out), 0.0f);
+  // The step's outputs: dense feature f belongs to channel f / per_channel; a convolution's
+  // output channel o is channel o.
+  const int64_t outputs = step.convolution ? step.out : step.out;
+  for (int64_t o = 0; o < outputs; ++o) {
+    const int64_t ch = step.convolution ? o : o / per_channel;
+    const double s = static_cast<double>(scale.data()[ch]) /
+                     std::sqrt(static_cast<double>(variance.data()[ch]) + epsilon);
+    step.offset[static_cast<size_t>(o)] = static_cast<float>(
+        (static_cast<double>(step.offset[static_cast<size_t>(o)]) - mean.data()[ch]) * s +
+        shift.data()[ch]);
+    if (step.convolution) {  // [in, out, 4, 4]: every (c, o, ky, kx)
+      for (int64_t c_in = 0; c_in < step.in; ++c_in)
+        for (int64_t k = 0; k < 16; ++k) {
+          float& w = step.weights[static_cast<size_t>((c_in * step.out + o) * 16 + k)];
+          w = static_cast<float>(w * s);
+        }
+    } else {  // [in, out]: column o
+      for (int64_t r = 0; r < step.in; ++r) {
+        float& w = step.weights[static_cast<size_t>(r * step.out + o)];
+        w = static_cast<float>(w * s);
+      }
+    }
+  }
+}
+
+// The DCGAN-style generator (architectures.cpp, make_dcgan_pair): project (dense, no bias),
+// norm0, relu, then up1 ... upD (transposed convolutions; batch normalisation and relu
+// between, the last with a bias and tanh).
+std::vector<Step> dcgan_plan(const SavedGenerator& g) {
+  const int64_t size = g.sample_shape[1], channels = g.sample_shape[0];
+  const int doublings = size == 28 ? 2 : size == 32 ? 3 : size == 64 ? 4 : 0;
+  if (doublings == 0 || g.sample_shape[2] != size)
+    raise(ErrorKind::kBadArgument, "export: dcgan samples of shape " + g.sample_shape.str() +
+                                       " (28, 32 or 64 pixels expected)");
+  const int64_t start = size == 28 ? 7 : 4;
+  const int64_t top = g.recipe.model.width << (doublings - 1);
+  const auto named = tensors_of(g);
+  std::vector<Step> steps;
+  Step project;
+  project.in = g.pair.latent + g.pair.classes;
+  project.out = top * start * start;
+  project.weights = values(need(named, "generator/project/matrix", Shape{project.in, project.out}));
+  fold_normalisation(project, named, "generator/norm0", top, start * start);
+  project.activation = Activation::kRelu;
+  steps.push_back(project);
+  int64_t c = top, side = start;
+  for (int i = 1; i <= doublings; ++i) {
+    const bool last = i == doublings;
+    const std::string up = "generator/up" + std::to_string(i);
+    Step s;
+    s.convolution = true;
+    s.in = c;
+    s.out = last ? channels : c / 2;
+    s.height = s.width = side;
+    s.weights = values(need(named, up + "/filters", Shape{s.in, s.out, 4, 4}));
+    if (last) {
+      s.offset = values(need(named, up + "/offset", Shape{s.out}));
+      s.activation = Activation::kTanh;
+    } else {
+      fold_normalisation(s, named, "generator/norm" + std::to_string(i), s.out, 1);
+      s.activation = Activation::kRelu;
+    }
+    steps.push_back(s);
+    c = s.out;
+    side *= 2;
+  }
+  return steps;
+}
+
+void array(std::ostringstream& out, const std::string& name, const std::vector<float>& v) {
+  out << "static const float " << name << "[" << v.size() << "] = {";
+  for (size_t i = 0; i < v.size(); ++i) {
+    if (!std::isfinite(v[i]))
       raise(ErrorKind::kBadArgument, "export: " + name + " holds a non-finite weight");
-    out << (i % 6 == 0 ? "\n    " : " ") << hex_float(t.data()[i]) << ",";
+    out << (i % 6 == 0 ? "\n    " : " ") << hex_float(v[i]) << ",";
   }
   out << "\n};\n";
 }
@@ -98,20 +212,23 @@ std::string c_header(const SavedGenerator& g, const CHeaderOptions& options) {
     raise(
         ErrorKind::kBadArgument,
         "--prefix: \"" + p + "\" is not a C identifier (a letter or _, then letters, digits or _)");
-  if (g.recipe.model.kind != "mlp")
+  std::vector<Step> steps;
+  if (g.recipe.model.kind == "mlp")
+    steps = mlp_plan(g);
+  else if (g.recipe.model.kind == "dcgan")
+    steps = dcgan_plan(g);
+  else
     raise(ErrorKind::kBadArgument, "export: model.kind " + g.recipe.model.kind +
-                                       " cannot be exported yet; the exporter writes mlp "
-                                       "generators (points and tables)");
-  const std::vector<DenseLayer> layers = mlp_layers(g);
+                                       " cannot be exported: the exporter writes mlp and dcgan "
+                                       "generators");
   const std::string P = upper(p);
   const int64_t latent = g.pair.latent, classes = g.pair.classes;
   const int64_t outputs = g.sample_shape.element_count();
   int64_t widest = 1;
-  for (const DenseLayer& l : layers) widest = std::max(widest, l.out);
-  if (layers.front().in != latent + classes || layers.back().out != outputs)
+  for (const Step& st : steps) widest = std::max(widest, st.output_size());
+  if (steps.front().in != latent + classes || steps.back().output_size() != outputs)
     raise(ErrorKind::kBadArgument,
-          "export: the generator's layers do not fit its latent size "
-          "and sample shape");
+          "export: the generator's layers do not fit its latent size and sample shape");
 
   std::ostringstream h;
   h << "/* " << options.file_name
@@ -172,9 +289,11 @@ std::string c_header(const SavedGenerator& g, const CHeaderOptions& options) {
     for (const std::string& name : g.class_names) h << "\n    " << c_string(name) << ",";
     h << "\n};\n\n";
   }
-  for (size_t i = 0; i < layers.size(); ++i) {
-    array(h, p + "_matrix" + std::to_string(i), *layers[i].matrix);
-    array(h, p + "_offset" + std::to_string(i), *layers[i].offset);
+  bool any_convolution = false;
+  for (size_t i = 0; i < steps.size(); ++i) {
+    array(h, p + "_weights" + std::to_string(i), steps[i].weights);
+    array(h, p + "_offset" + std::to_string(i), steps[i].offset);
+    any_convolution |= steps[i].convolution;
   }
   // Philox4x32-10 (Salmon et al. 2011) on counter (block, stream) with key = the seed, as
   // engine/random.cpp draws; the stream is FNV-1a 64 of the seed's bytes and "sampling".
@@ -239,11 +358,19 @@ void )"
   }
 }
 
+/* The activation after a step: 0 none, 1 relu, 2 tanh. */
+static float )"
+    << p << R"(_activate(float v, int activation) {
+  if (activation == 1) return v > 0.0f ? v : 0.0f;
+  if (activation == 2) return tanhf(v);
+  return v;
+}
+
 /* y = x W + b, W row-major [n_in][n_out]; the row `extra` of W is added too when it is a
-   row (a class's one-hot input), and relu applied when `relu`. */
+   row (a class's one-hot input), then the activation. */
 static void )"
     << p << R"(_dense(const float* x, int n_in, int extra, const float* w,
-                       const float* b, int n_out, int relu, float* y) {
+                       const float* b, int n_out, int activation, float* y) {
   int i, o;
   for (o = 0; o < n_out; ++o) y[o] = 0.0f;
   for (i = 0; i < n_in; ++i) {
@@ -255,12 +382,42 @@ static void )"
     const float* row = w + (size_t)extra * (size_t)n_out;
     for (o = 0; o < n_out; ++o) y[o] += row[o];
   }
-  for (o = 0; o < n_out; ++o) {
-    y[o] += b[o];
-    if (relu && !(y[o] > 0.0f)) y[o] = 0.0f;
-  }
+  for (o = 0; o < n_out; ++o) y[o] = )"
+    << p << R"(_activate(y[o] + b[o], activation);
 }
-
+)";
+  if (any_convolution)
+    h << R"(
+/* The transposed convolution with 4x4 kernels, stride 2 and padding 1: x [n_in][h][w] to
+   y [n_out][2h][2w], w [n_in][n_out][4][4], y[o][oy][ox] = b[o] + the sum over c, ky, kx of
+   x[c][iy][ix] w[c][o][ky][kx] where oy = 2 iy - 1 + ky and ox = 2 ix - 1 + kx; the sums run
+   in double, then the activation. */
+static void )"
+      << p << R"(_upsample(const float* x, int n_in, int h, int w, const float* f,
+                          const float* b, int n_out, int activation, float* y) {
+  int o, oy, ox, c, ky, kx;
+  for (o = 0; o < n_out; ++o)
+    for (oy = 0; oy < 2 * h; ++oy)
+      for (ox = 0; ox < 2 * w; ++ox) {
+        double sum = b[o];
+        for (ky = (oy + 1) % 2; ky < 4; ky += 2) {
+          const int iy = (oy + 1 - ky) / 2;
+          if (iy < 0 || iy >= h) continue;
+          for (kx = (ox + 1) % 2; kx < 4; kx += 2) {
+            const int ix = (ox + 1 - kx) / 2;
+            if (ix < 0 || ix >= w) continue;
+            for (c = 0; c < n_in; ++c)
+              sum += (double)x[((size_t)c * (size_t)h + (size_t)iy) * (size_t)w + (size_t)ix] *
+                     (double)f[(((size_t)c * (size_t)n_out + (size_t)o) * 4 + (size_t)ky) * 4 + (size_t)kx];
+          }
+        }
+        y[((size_t)o * (size_t)(2 * h) + (size_t)oy) * (size_t)(2 * w) + (size_t)ox] =
+            )"
+      << p << R"(_activate((float)sum, activation);
+      }
+}
+)";
+  h << R"(
 void )"
     << p << R"(_generate(const float* z, int class_index, float* out, void* scratch) {
   float* a = (float*)scratch;
@@ -275,13 +432,19 @@ void )"
       << " + class_index;\n";
   else
     h << "  (void)class_index;\n";
-  for (size_t i = 0; i < layers.size(); ++i) {
-    const bool last = i + 1 == layers.size();
+  for (size_t i = 0; i < steps.size(); ++i) {
+    const Step& st = steps[i];
+    const bool last = i + 1 == steps.size();
     const std::string to = last ? "out" : (i % 2 == 0 ? "a" : "b");
-    const int64_t in = i == 0 ? latent : layers[i].in;
-    h << "  " << p << "_dense(x, " << in << ", " << (i == 0 ? "extra" : "-1") << ", " << p
-      << "_matrix" << i << ", " << p << "_offset" << i << ", " << layers[i].out << ", "
-      << (layers[i].relu ? 1 : 0) << ", " << to << ");\n";
+    const int activation = static_cast<int>(st.activation);
+    if (st.convolution)
+      h << "  " << p << "_upsample(x, " << st.in << ", " << st.height << ", " << st.width << ", "
+        << p << "_weights" << i << ", " << p << "_offset" << i << ", " << st.out << ", "
+        << activation << ", " << to << ");\n";
+    else
+      h << "  " << p << "_dense(x, " << (i == 0 ? latent : st.in) << ", "
+        << (i == 0 ? "extra" : "-1") << ", " << p << "_weights" << i << ", " << p << "_offset" << i
+        << ", " << st.out << ", " << activation << ", " << to << ");\n";
     if (!last) h << "  x = " << to << ";\n";
   }
   h << "}\n#endif /* " << P << "_IMPLEMENTATION */\n";

@@ -4,9 +4,11 @@
 // the samples `spar sample` draws. The header's opening comment is its manual; the layout is
 // described in docs/embedding.md.
 //
-// Exportable today: the mlp generators (points and tables, unconditional or class-
-// conditional), with f32 weights. Any other architecture is refused by name, never exported
-// wrongly.
+// Exportable: every generator spar builds (recipes/architectures.h), unconditional or class-
+// conditional: the mlp (points, tables) and the DCGAN-style ones for 28, 32 and 64 pixels,
+// with batch normalisation folded into the layer before it; float32 weights. A generator
+// whose tensors are not those of its recipe's architecture is refused by name, never
+// exported wrongly.
 //
 // Thread safety: pure functions of the generator.
 #pragma once
