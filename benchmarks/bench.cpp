@@ -11,6 +11,7 @@ namespace bench {
 void register_engine_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
 void register_conv_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
 void register_training_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
+void register_export_benchmarks(std::vector<std::pair<std::string, Benchmark>>& list);
 
 namespace {
 // Seconds per call of one timed batch lasting at least min_seconds.
@@ -54,6 +55,7 @@ const std::vector<std::pair<std::string, Benchmark>>& benchmarks() {
     register_engine_benchmarks(l);
     register_conv_benchmarks(l);
     register_training_benchmarks(l);
+    register_export_benchmarks(l);
     return l;
   }();
   return list;

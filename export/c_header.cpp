@@ -125,10 +125,9 @@ void fold_normalisation(Step& step, const std::map<std::string, const Tensor<flo
   const Tensor<float>& variance = need(named, norm + "/population_variance", c);
   const double epsilon = BatchNormalisationOptions{}.epsilon;
   if (step.offset.empty()) step.offset.assign(static_cast<size_t>(step.out), 0.0f);
-  // The step's outputs: dense feature f belongs to channel f / per_channel; a convolution's
+  // The step's outputs: dense feature o belongs to channel o / per_channel; a convolution's
   // output channel o is channel o.
-  const int64_t outputs = step.convolution ? step.out : step.out;
-  for (int64_t o = 0; o < outputs; ++o) {
+  for (int64_t o = 0; o < step.out; ++o) {
     const int64_t ch = step.convolution ? o : o / per_channel;
     const double s = static_cast<double>(scale.data()[ch]) /
                      std::sqrt(static_cast<double>(variance.data()[ch]) + epsilon);

@@ -167,6 +167,24 @@ std::string check_jpeg_huffman_tables(const unsigned char* p, size_t n) {
   return "";
 }
 
+std::string check_png_chunks(const unsigned char* p, size_t n) {
+  // After the 8-byte signature: chunks of length (4 bytes, big-endian), type (4), data
+  // (length bytes) and CRC (4) (PNG specification, 5.3).
+  size_t at = 8;
+  while (at + 8 <= n) {
+    const uint64_t length =
+        uint64_t{p[at]} << 24 | uint64_t{p[at + 1]} << 16 | uint64_t{p[at + 2]} << 8 | p[at + 3];
+    const std::string type(reinterpret_cast<const char*>(p + at + 4), 4);
+    if (length + 12 > n - at)
+      return "truncated: its " + type + " chunk at byte " + std::to_string(at) + " claims " +
+             std::to_string(length) + " bytes of data, but the file holds " +
+             std::to_string(n - at) + " from there";
+    if (type == "IEND") return "";
+    at += 12 + static_cast<size_t>(length);
+  }
+  return "";
+}
+
 std::string check_bmp_length(const unsigned char* p, size_t n) {
   // BITMAPFILEHEADER (14 bytes) then an info header of at least 40 bytes: width at byte 18,
   // height at 22 (negative: top-down), bits per pixel at 28, compression at 30 (0: none,
@@ -207,6 +225,10 @@ DecodedImage decode_image_file(const std::string& path, int64_t pixel_limit,
     if (format == "JPEG") {
       const std::string bad = check_jpeg_huffman_tables(bytes.data(), bytes.size());
       if (!bad.empty()) fail(path, "damaged JPEG: " + bad);
+    }
+    if (format == "PNG") {
+      const std::string bad = check_png_chunks(bytes.data(), bytes.size());
+      if (!bad.empty()) fail(path, bad);
     }
     int w = 0, h = 0, n = 0;
     if (!stbi_info_from_memory(bytes.data(), size, &w, &h, &n)) {

@@ -46,5 +46,9 @@ std::string check_jpeg_huffman_tables(const unsigned char* bytes, size_t size);
 // decoder would read zeros for the missing bytes, at the full claimed size), else "" (exposed
 // for tests).
 std::string check_bmp_length(const unsigned char* bytes, size_t size);
+// A message when a PNG chunk before IEND claims more bytes than the file holds after it (the
+// decoder would first grow its buffer for a compressed-data chunk to the claimed size: a
+// 108-byte file asked for 2 GiB), else "" (exposed for tests).
+std::string check_png_chunks(const unsigned char* bytes, size_t size);
 
 }  // namespace spar

@@ -21,6 +21,7 @@ namespace {
 using testing::bmp_header;
 using testing::error_kind_of;
 using testing::palette_png;
+using testing::read_bytes;
 using testing::require_bad_input;
 using testing::Rgba;
 using testing::ScratchDir;
@@ -279,6 +280,25 @@ TEST_CASE("hostile image files are refused from their first bytes, before decodi
   tight.pixel_limit = 63;
   require_bad_input([&] { load_images(folder_of(small), tight); },
                     small + ": 8x8 pixels, more than the limit of 63");
+
+  // Found by an hour of fuzzing: a PNG data chunk claiming more bytes than the file holds made
+  // the decoder grow its buffer to the claimed size first (2 GiB for a 108-byte file).
+  std::string claims = read_bytes(small);
+  const size_t idat = claims.find("IDAT");
+  REQUIRE(idat != std::string::npos);
+  const std::string huge_length("\x7f\xff\xff\xf0", 4);
+  claims.replace(idat - 4, 4, huge_length);
+  const auto* cp = reinterpret_cast<const unsigned char*>(claims.data());
+  CHECK(check_png_chunks(cp, claims.size()) ==
+        "truncated: its IDAT chunk at byte " + std::to_string(idat - 4) +
+            " claims 2147483632 bytes of data, but the file holds " +
+            std::to_string(claims.size() - (idat - 4)) + " from there");
+  const std::string claiming_png = alone("claims.png", claims);
+  require_bad_input([&] { load_images(folder_of(claiming_png), {}); },
+                    claiming_png + ": truncated: its IDAT chunk");
+  const std::string good_png = read_bytes(small);  // a real encoder's file passes
+  CHECK(check_png_chunks(reinterpret_cast<const unsigned char*>(good_png.data()), good_png.size())
+            .empty());
 
   // Regression: a DHT segment whose 16 code counts add up to more than 256 made the JPEG
   // decoder's table builder write past its arrays (ITU-T T.81 B.2.4.2: at most 256 codes).
