@@ -223,8 +223,11 @@ std::string c_header(const SavedGenerator& g, const CHeaderOptions& options) {
   const std::string P = upper(p);
   const int64_t latent = g.pair.latent, classes = g.pair.classes;
   const int64_t outputs = g.sample_shape.element_count();
-  int64_t widest = 1;
-  for (const Step& st : steps) widest = std::max(widest, st.output_size());
+  int64_t widest = 1, plane = 0;  // the largest step output; the largest convolution input map
+  for (const Step& st : steps) {
+    widest = std::max(widest, st.output_size());
+    if (st.convolution) plane = std::max(plane, st.height * st.width);
+  }
   if (steps.front().in != latent + classes || steps.back().output_size() != outputs)
     raise(ErrorKind::kBadArgument,
           "export: the generator's layers do not fit its latent size and sample shape");
@@ -274,7 +277,7 @@ std::string c_header(const SavedGenerator& g, const CHeaderOptions& options) {
   h << "#define " << P << "_CLASSES " << classes << "\n"
     << "#define " << P << "_STEP " << g.step << "\n"
     << "#define " << P << "_RECIPE_HASH \"" << recipe_hash(g.recipe) << "\"\n"
-    << "#define " << P << "_SCRATCH_BYTES (" << 2 * widest << " * sizeof(float))\n\n"
+    << "#define " << P << "_SCRATCH_BYTES (" << 2 * widest + plane << " * sizeof(float))\n\n"
     << "#ifdef __cplusplus\nextern \"C\" {\n#endif\n";
   if (classes > 0) h << "extern const char* const " << p << "_class_names[" << classes << "];\n";
   h << "void " << p << "_latent(uint64_t seed, uint64_t index, float* z);\n"
@@ -388,31 +391,43 @@ static void )"
   if (any_convolution)
     h << R"(
 /* The transposed convolution with 4x4 kernels, stride 2 and padding 1: x [n_in][h][w] to
-   y [n_out][2h][2w], w [n_in][n_out][4][4], y[o][oy][ox] = b[o] + the sum over c, ky, kx of
-   x[c][iy][ix] w[c][o][ky][kx] where oy = 2 iy - 1 + ky and ox = 2 ix - 1 + kx; the sums run
-   in double, then the activation. */
+   y [n_out][2h][2w], f [n_in][n_out][4][4]: y[o][oy][ox] = b[o] + the sum over c, ky, kx of
+   x[c][iy][ix] f[c][o][ky][kx] where oy = 2 iy - 1 + ky and ox = 2 ix - 1 + kx. Computed per
+   output channel and parity of (oy, ox): each parity is reached by 2 x 2 of the 16 taps, and
+   for each input channel and tap one contiguous multiply-add over a row, into `sub` (h w
+   floats of the caller's scratch); then the activation. */
 static void )"
       << p << R"(_upsample(const float* x, int n_in, int h, int w, const float* f,
-                          const float* b, int n_out, int activation, float* y) {
-  int o, oy, ox, c, ky, kx;
+                          const float* b, int n_out, int activation, float* y, float* sub) {
+  int o, py, px, c, ty, tx, a, col;
   for (o = 0; o < n_out; ++o)
-    for (oy = 0; oy < 2 * h; ++oy)
-      for (ox = 0; ox < 2 * w; ++ox) {
-        double sum = b[o];
-        for (ky = (oy + 1) % 2; ky < 4; ky += 2) {
-          const int iy = (oy + 1 - ky) / 2;
-          if (iy < 0 || iy >= h) continue;
-          for (kx = (ox + 1) % 2; kx < 4; kx += 2) {
-            const int ix = (ox + 1 - kx) / 2;
-            if (ix < 0 || ix >= w) continue;
-            for (c = 0; c < n_in; ++c)
-              sum += (double)x[((size_t)c * (size_t)h + (size_t)iy) * (size_t)w + (size_t)ix] *
-                     (double)f[(((size_t)c * (size_t)n_out + (size_t)o) * 4 + (size_t)ky) * 4 + (size_t)kx];
+    for (py = 0; py < 2; ++py)
+      for (px = 0; px < 2; ++px) {
+        for (a = 0; a < h * w; ++a) sub[a] = 0.0f;
+        for (c = 0; c < n_in; ++c) {
+          const float* xc = x + (size_t)c * (size_t)h * (size_t)w;
+          for (ty = 0; ty < 2; ++ty) {
+            const int ky = (py + 1) % 2 + 2 * ty, dy = (py + 1 - ky) / 2; /* iy = a + dy */
+            for (tx = 0; tx < 2; ++tx) {
+              const int kx = (px + 1) % 2 + 2 * tx, dx = (px + 1 - kx) / 2; /* ix = col + dx */
+              const float wt = f[(((size_t)c * (size_t)n_out + (size_t)o) * 4 + (size_t)ky) * 4 + (size_t)kx];
+              const int first = dx < 0 ? -dx : 0, end = dx > 0 ? w - dx : w;
+              for (a = 0; a < h; ++a) {
+                const int iy = a + dy;
+                float* row = sub + (size_t)a * (size_t)w;
+                const float* in;
+                if (iy < 0 || iy >= h) continue;
+                in = xc + (size_t)iy * (size_t)w;
+                for (col = first; col < end; ++col) row[col] += wt * in[col + dx];
+              }
+            }
           }
         }
-        y[((size_t)o * (size_t)(2 * h) + (size_t)oy) * (size_t)(2 * w) + (size_t)ox] =
-            )"
-      << p << R"(_activate((float)sum, activation);
+        for (a = 0; a < h; ++a)
+          for (col = 0; col < w; ++col)
+            y[((size_t)o * (size_t)(2 * h) + (size_t)(2 * a + py)) * (size_t)(2 * w) + (size_t)(2 * col + px)] =
+                )"
+      << p << R"(_activate(sub[(size_t)a * (size_t)w + (size_t)col] + b[o], activation);
       }
 }
 )";
@@ -422,9 +437,12 @@ void )"
   float* a = (float*)scratch;
   float* b = a + )"
     << widest << R"(;
+  float* sub = b + )"
+    << widest << R"(;
   const float* x = z;
   int extra = -1;
   (void)b;
+  (void)sub;
 )";
   if (classes > 0)
     h << "  if (class_index >= 0 && class_index < " << classes << ") extra = " << latent
@@ -439,7 +457,7 @@ void )"
     if (st.convolution)
       h << "  " << p << "_upsample(x, " << st.in << ", " << st.height << ", " << st.width << ", "
         << p << "_weights" << i << ", " << p << "_offset" << i << ", " << st.out << ", "
-        << activation << ", " << to << ");\n";
+        << activation << ", " << to << ", sub);\n";
     else
       h << "  " << p << "_dense(x, " << (i == 0 ? latent : st.in) << ", "
         << (i == 0 ? "extra" : "-1") << ", " << p << "_weights" << i << ", " << p << "_offset" << i
